@@ -1,0 +1,51 @@
+"""evtkin: event files to analysis plots.
+
+The public API is listed in ``__all__``. Names are imported lazily so that
+``import evtkin`` stays fast (the compiled LHE scanner and plotting libraries
+load only when used).
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
+from evtkin.errors import ConfigError, EvtkinError, LHEError, NtupleError, ResultsError
+
+__version__ = "0.1.0"
+
+# public name -> module that defines it
+_LAZY: dict[str, str] = {
+    "read_lhe": "evtkin.io.lhe",
+    "lhe_info": "evtkin.io.lhe_header",
+    "LHEInfo": "evtkin.io.lhe_header",
+    "write_lhe": "evtkin.io.lhe_write",
+}
+
+__all__ = [
+    "ConfigError",
+    "EvtkinError",
+    "LHEError",
+    "NtupleError",
+    "ResultsError",
+    "__version__",
+    *_LAZY,
+]
+
+if TYPE_CHECKING:  # pragma: no cover
+    from evtkin.io.lhe import read_lhe
+    from evtkin.io.lhe_header import LHEInfo, lhe_info
+    from evtkin.io.lhe_write import write_lhe
+
+
+def __getattr__(name: str) -> Any:
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module 'evtkin' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

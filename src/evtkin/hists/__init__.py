@@ -1,0 +1,1 @@
+"""hists layer of evtkin."""

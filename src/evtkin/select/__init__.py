@@ -1,0 +1,1 @@
+"""select layer of evtkin."""

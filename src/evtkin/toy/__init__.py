@@ -1,0 +1,1 @@
+"""toy layer of evtkin."""
