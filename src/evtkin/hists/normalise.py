@@ -1,0 +1,139 @@
+"""Normalisations of filled histograms with propagated MC-statistics variances (REFERENCES §2.11).
+
+Modes (the strings are the ``"normalisation"`` values of docs/results-format.md):
+
+* ``raw``: Σw as filled.
+* ``xsec_per_bin``: dσ/dX = Σw / Δx (2-D: / area), variance / Δx². Bins with a flow coordinate have
+  infinite width and keep their plain Σw (pb), so Σ_in-range value·Δx + Σ_flow value = σ.
+* ``events``: N = L·Σw with L in fb⁻¹ converted to pb⁻¹ (× 1000); variance × L².
+* ``unit_area``: p_k = W_k/W with W the sum over **all bins including flow** (default) or over the
+  in-range bins (``include_flow=False``). Delta-method variance with independent bins:
+  ``Var(p_k) = [(1 − 2 m_k p_k) s_k² + p_k² S] / W²`` with ``S = Σ_{j in W} s_j²`` and ``m_k = 1``
+  for bins that enter W (reduces to the binomial p(1−p)/N for unit weights).
+
+Every variation is normalised the same way; for ``unit_area`` each variation is divided by its own
+total, so a band built from these is a pure shape uncertainty.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+
+from evtkin.hists.fill import HistAccumulator, HistSpec
+
+__all__ = ["MODES", "NormalisedHist", "bin_volumes", "normalise", "unit_area"]
+
+Mode = Literal["raw", "xsec_per_bin", "events", "unit_area"]
+MODES: tuple[str, ...] = ("raw", "xsec_per_bin", "events", "unit_area")
+PB_PER_FB = 1000.0  # 1 fb⁻¹ = 1000 pb⁻¹
+
+
+@dataclass
+class NormalisedHist:
+    """Normalised contents: ``values``/``variances`` of shape ``(1 + V, *spec.shape)`` with flow."""
+
+    spec: HistSpec
+    variations: tuple[str, ...]
+    values: np.ndarray
+    variances: np.ndarray
+    normalisation: str
+    y_unit: str
+    y_label: str
+    entries: int = 0
+    norm_includes_flow: bool = True
+
+    @property
+    def nominal(self) -> np.ndarray:
+        return self.values[0]
+
+    @property
+    def nominal_variance(self) -> np.ndarray:
+        return self.variances[0]
+
+
+def bin_volumes(spec: HistSpec) -> np.ndarray:
+    """Bin widths (1-D) or areas (2-D) with flow, flow bins set to ``inf``."""
+    per_axis = []
+    for a in spec.axes:
+        w = np.full(a.nbins + 2, np.inf)
+        w[1:-1] = a.widths
+        per_axis.append(w)
+    if spec.ndim == 1:
+        return per_axis[0]
+    return np.multiply.outer(per_axis[0], per_axis[1])
+
+
+def _flow_mask(spec: HistSpec) -> np.ndarray:
+    """True for in-range bins (no flow coordinate)."""
+    m = np.zeros(spec.shape, dtype=bool)
+    m[(slice(1, -1),) * spec.ndim] = True
+    return m
+
+
+def unit_area(
+    values: np.ndarray, variances: np.ndarray, in_sum: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """p = W_k/W and its delta-method variance for one weight; ``in_sum`` marks bins in W."""
+    total = float(np.sum(values[in_sum]))
+    if total == 0.0:
+        return np.zeros_like(values), np.zeros_like(variances)
+    s_tot = float(np.sum(variances[in_sum]))
+    p = values / total
+    var = ((1.0 - 2.0 * p * in_sum) * variances + p * p * s_tot) / (total * total)
+    return p, var
+
+
+def _unit(spec: HistSpec) -> str:
+    parts = [a.unit for a in spec.axes if a.unit]
+    if not parts:
+        return "pb"
+    if len(parts) == 1:
+        return f"pb/{parts[0]}"
+    return "pb/(" + "·".join(parts) + ")"
+
+
+def normalise(
+    acc: HistAccumulator,
+    mode: Mode | str = "raw",
+    *,
+    luminosity_fb: float | None = None,
+    include_flow: bool = True,
+    weights_in_pb: bool = True,
+) -> NormalisedHist:
+    """Normalise an accumulator (all weights at once); see the module docstring for the modes."""
+    spec = acc.spec
+    w = np.array(acc.sumw, dtype=np.float64)
+    w2 = np.array(acc.sumw2, dtype=np.float64)
+    xlabel = " ".join(a.label or a.name for a in spec.axes)
+    if mode == "raw":
+        return NormalisedHist(spec, acc.variations, w, w2, "raw", "pb" if weights_in_pb else "",
+                              "Σw per bin", acc.entries, include_flow)
+    if mode == "xsec_per_bin":
+        vol = bin_volumes(spec)
+        inside = np.isfinite(vol)
+        div = np.where(inside, vol, 1.0)
+        label = f"dσ/d{xlabel}" if spec.ndim == 1 else "d²σ/(" + ")(".join(
+            a.label or a.name for a in spec.axes) + ")"
+        return NormalisedHist(spec, acc.variations, w / div, w2 / (div * div), "xsec_per_bin",
+                              _unit(spec), label, acc.entries, include_flow)
+    if mode == "events":
+        if luminosity_fb is None or not np.isfinite(luminosity_fb) or luminosity_fb < 0:
+            raise ValueError(
+                f"histogram {spec.name!r}: normalisation 'events' needs a luminosity in fb⁻¹ "
+                f"(>= 0), got {luminosity_fb!r}"
+            )
+        lum = float(luminosity_fb) * PB_PER_FB
+        return NormalisedHist(spec, acc.variations, w * lum, w2 * lum * lum, "events", "events",
+                              "events per bin", acc.entries, include_flow)
+    if mode == "unit_area":
+        in_sum = np.ones(spec.shape, dtype=bool) if include_flow else _flow_mask(spec)
+        vals = np.empty_like(w)
+        vars_ = np.empty_like(w2)
+        for i in range(w.shape[0]):  # each variation on its own
+            vals[i], vars_[i] = unit_area(w[i], w2[i], in_sum)
+        return NormalisedHist(spec, acc.variations, vals, vars_, "unit_area", "",
+                              "fraction per bin", acc.entries, include_flow)
+    raise ValueError(f"unknown normalisation {mode!r}; expected one of {', '.join(MODES)}")

@@ -1,0 +1,147 @@
+"""Publication-quality plots with matplotlib (Agg backend, no display needed).
+
+1-D: one step histogram per sample with MC error bars at the bin centres and, if present, the
+bands shaded; axis labels with units; a corner note supplied by the caller (for example
+"toy data — not a physics prediction"). 2-D: a colour map of one sample. Each figure is written as
+PNG and PDF, through a temporary name and a rename.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from evtkin.output.tables import HistResult, Results, atomic_write_bytes, safe_name
+
+__all__ = ["plot_hist1d", "plot_hist2d", "write_plots"]
+
+FORMATS = ("png", "pdf")
+
+
+def _pyplot() -> Any:
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def _save(fig: Any, stem: Path, formats: Sequence[str]) -> list[Path]:
+    out = []
+    for fmt in formats:
+        buf = io.BytesIO()
+        fig.savefig(buf, format=fmt, dpi=150, bbox_inches="tight",
+                    metadata={"Creator": "evtkin"} if fmt in ("png", "pdf") else None)
+        out.append(atomic_write_bytes(stem.with_name(f"{stem.name}.{fmt}"), buf.getvalue()))
+    return out
+
+
+def plot_hist1d(
+    stem: str | os.PathLike[str],
+    series: Sequence[tuple[str, HistResult]],
+    *,
+    note: str = "",
+    logy: bool = False,
+    band_names: Sequence[str] | None = None,
+    formats: Sequence[str] = FORMATS,
+) -> list[Path]:
+    """Overlay ``(label, HistResult)`` pairs (same binning); flow bins are not drawn."""
+    if not series:
+        raise ValueError("plot_hist1d: nothing to plot")
+    plt = _pyplot()
+    first = series[0][1]
+    edges = first.axes[0].edges
+    centres = 0.5 * (edges[1:] + edges[:-1])
+    fig, ax = plt.subplots(figsize=(6.4, 4.8), constrained_layout=True)
+    for i, (label, h) in enumerate(series):
+        if h.ndim != 1 or not np.array_equal(h.axes[0].edges, edges):
+            raise ValueError(f"plot_hist1d: {h.name!r} of {label!r} has different binning")
+        colour = f"C{i}"
+        vals = h.inner_values()
+        errs = np.sqrt(np.clip(h.inner_variances(), 0.0, None))
+        for j, bname in enumerate(band_names if band_names is not None else list(h.bands)):
+            if bname not in h.bands:
+                continue
+            b = h.bands[bname]
+            ax.fill_between(edges, np.append(b.down[1:-1], b.down[-2]),
+                            np.append(b.up[1:-1], b.up[-2]), step="post", color=colour,
+                            alpha=0.25 / (1 + j), linewidth=0,
+                            label=f"{label}: {bname} unc." if j < 2 else None)
+        ax.stairs(vals, edges, color=colour, linewidth=1.5, label=label)
+        ax.errorbar(centres, vals, yerr=errs, fmt="none", ecolor=colour, elinewidth=1.0,
+                    capsize=0)
+    ax.set_xlabel(first.axes[0].title, fontsize=12)
+    ax.set_ylabel(first.y_title, fontsize=12)
+    ax.set_xlim(edges[0], edges[-1])
+    if logy:
+        ax.set_yscale("log")
+    ax.tick_params(direction="in", which="both", top=True, right=True)
+    ax.minorticks_on()
+    ax.set_title(first.title, fontsize=12)
+    ax.legend(frameon=False, fontsize=9)
+    if note:
+        ax.text(0.02, 0.98, note, transform=ax.transAxes, ha="left", va="top", fontsize=8,
+                style="italic", color="0.3")
+    try:
+        return _save(fig, Path(stem), formats)
+    finally:
+        plt.close(fig)
+
+
+def plot_hist2d(
+    stem: str | os.PathLike[str],
+    h: HistResult,
+    *,
+    label: str = "",
+    note: str = "",
+    formats: Sequence[str] = FORMATS,
+) -> list[Path]:
+    """Colour map of a 2-D histogram (in-range bins)."""
+    if h.ndim != 2:
+        raise ValueError(f"plot_hist2d: {h.name!r} is not 2-D")
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(6.4, 5.0), constrained_layout=True)
+    xe, ye = h.axes[0].edges, h.axes[1].edges
+    mesh = ax.pcolormesh(xe, ye, h.inner_values().T, cmap="viridis", shading="flat")
+    cb = fig.colorbar(mesh, ax=ax)
+    cb.set_label(h.y_title)
+    ax.set_xlabel(h.axes[0].title, fontsize=12)
+    ax.set_ylabel(h.axes[1].title, fontsize=12)
+    ax.set_title(f"{h.title}" + (f" — {label}" if label else ""), fontsize=12)
+    ax.tick_params(direction="in", which="both", top=True, right=True)
+    if note:
+        ax.text(0.02, 0.98, note, transform=ax.transAxes, ha="left", va="top", fontsize=8,
+                style="italic", color="white")
+    try:
+        return _save(fig, Path(stem), formats)
+    finally:
+        plt.close(fig)
+
+
+def write_plots(
+    folder: str | os.PathLike[str], results: Results, *, note: str = "",
+    formats: Sequence[str] = FORMATS,
+) -> list[Path]:
+    """``plots/<hist>.{png,pdf}`` (1-D, samples overlaid) and ``plots/<hist>__<sample>.*`` (2-D)."""
+    d = Path(folder) / "plots"
+    names: list[str] = []
+    for s in results.samples.values():
+        names += [n for n in s.histograms if n not in names]
+    out: list[Path] = []
+    for hname in names:
+        present = [(s.label or s.name, s.name, s.histograms[hname])
+                   for s in results.samples.values() if hname in s.histograms]
+        if present[0][2].ndim == 1:
+            out += plot_hist1d(d / safe_name(hname), [(lab, h) for lab, _n, h in present],
+                               note=note, formats=formats)
+        else:
+            for lab, sname, h in present:
+                out += plot_hist2d(d / f"{safe_name(hname)}__{safe_name(sname)}", h, label=lab,
+                                   note=note, formats=formats)
+    return out

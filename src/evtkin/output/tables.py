@@ -1,0 +1,488 @@
+"""Results JSON, CSV tables, cutflow tables and provenance of a results folder.
+
+The folder layout and the JSON schema are documented in docs/results-format.md. The same plain
+dataclasses (:class:`Results`, :class:`SampleResult`, :class:`HistResult`, :class:`AxisInfo` and
+:class:`evtkin.hists.bands.Band`) are written and read back by :func:`load_results`.
+Every file is written to a temporary name in its folder and renamed (no half-written files).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+import re
+import tempfile
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from evtkin.errors import ResultsError
+from evtkin.hists.bands import Band
+from evtkin.hists.normalise import NormalisedHist
+
+__all__ = [
+    "FORMAT",
+    "FORMAT_VERSION",
+    "AxisInfo",
+    "HistResult",
+    "Results",
+    "SampleResult",
+    "atomic_write_bytes",
+    "atomic_write_text",
+    "cutflow_text",
+    "hist_result",
+    "load_results",
+    "safe_name",
+    "write_cutflow",
+    "write_hist_csv",
+    "write_json",
+    "write_provenance",
+    "write_results",
+]
+
+FORMAT = "evtkin-results"
+FORMAT_VERSION = 1
+RESULTS_JSON = "results.json"
+
+
+# --------------------------------------------------------------------------------------------------
+# plain objects
+# --------------------------------------------------------------------------------------------------
+@dataclass
+class AxisInfo:
+    name: str
+    label: str
+    unit: str
+    kind: str
+    edges: np.ndarray
+
+    @property
+    def nbins(self) -> int:
+        return int(self.edges.size - 1)
+
+    @property
+    def title(self) -> str:
+        base = self.label or self.name
+        return f"{base} [{self.unit}]" if self.unit else base
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"name": self.name, "label": self.label, "unit": self.unit, "kind": self.kind,
+                "edges": _jlist(self.edges)}
+
+
+@dataclass
+class HistResult:
+    """One normalised histogram of one sample; arrays include the flow bins."""
+
+    name: str
+    title: str
+    axes: list[AxisInfo]
+    normalisation: str
+    y_label: str
+    y_unit: str
+    entries: int
+    values: np.ndarray
+    variances: np.ndarray
+    bands: dict[str, Band] = field(default_factory=dict)
+    norm_includes_flow: bool = True
+    variation_values: dict[str, np.ndarray] | None = None
+
+    @property
+    def ndim(self) -> int:
+        return len(self.axes)
+
+    def _inner(self, a: np.ndarray) -> np.ndarray:
+        return a[(slice(1, -1),) * self.ndim]
+
+    def inner_values(self) -> np.ndarray:
+        return self._inner(self.values)
+
+    def inner_variances(self) -> np.ndarray:
+        return self._inner(self.variances)
+
+    def errors(self) -> np.ndarray:
+        """sqrt(variance), flow included."""
+        return np.sqrt(np.clip(self.variances, 0.0, None))
+
+    @property
+    def y_title(self) -> str:
+        return f"{self.y_label} [{self.y_unit}]" if self.y_unit else self.y_label
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "title": self.title,
+            "ndim": self.ndim,
+            "axes": [a.to_dict() for a in self.axes],
+            "normalisation": self.normalisation,
+            "norm_includes_flow": self.norm_includes_flow,
+            "y_label": self.y_label,
+            "y_unit": self.y_unit,
+            "entries": int(self.entries),
+            "values": _jlist(self.values),
+            "variances": _jlist(self.variances),
+            "bands": {k: {"method": b.method, "members": list(b.members),
+                          "down": _jlist(b.down), "up": _jlist(b.up)}
+                      for k, b in self.bands.items()},
+            "variation_values": None if self.variation_values is None else {
+                k: _jlist(v) for k, v in self.variation_values.items()},
+        }
+
+
+@dataclass
+class SampleResult:
+    name: str
+    label: str = ""
+    luminosity_fb: float | None = None
+    xsec: dict[str, Any] = field(default_factory=dict)
+    variations: list[str] = field(default_factory=list)
+    histograms: dict[str, HistResult] = field(default_factory=dict)
+    cutflow: list[dict[str, Any]] = field(default_factory=list)
+
+
+@dataclass
+class Results:
+    samples: dict[str, SampleResult] = field(default_factory=dict)
+    meta: dict[str, Any] = field(default_factory=dict)
+
+
+def hist_result(
+    norm: NormalisedHist, bands: Mapping[str, Band] | None = None, *, keep_variations: bool = False
+) -> HistResult:
+    """Build the plain :class:`HistResult` from normalised contents (nominal row) and bands."""
+    axes = [AxisInfo(a.name, a.label, a.unit, a.kind, a.edges_array.copy()) for a in norm.spec.axes]
+    var_vals = None
+    if keep_variations:
+        var_vals = {n: norm.values[i + 1].copy() for i, n in enumerate(norm.variations)}
+    return HistResult(
+        name=norm.spec.name, title=norm.spec.title or norm.spec.name, axes=axes,
+        normalisation=norm.normalisation, y_label=norm.y_label, y_unit=norm.y_unit,
+        entries=int(norm.entries), values=norm.values[0].copy(),
+        variances=norm.variances[0].copy(), bands=dict(bands or {}),
+        norm_includes_flow=norm.norm_includes_flow, variation_values=var_vals,
+    )
+
+
+# --------------------------------------------------------------------------------------------------
+# helpers
+# --------------------------------------------------------------------------------------------------
+_SAFE = re.compile(r"[^A-Za-z0-9_.+-]")
+
+
+def safe_name(name: str) -> str:
+    """A file-name part: characters outside ``[A-Za-z0-9_.+-]`` become ``_``."""
+    out = _SAFE.sub("_", name)
+    return out if out.strip(".") else "_"
+
+
+def _jnum(x: float) -> float | None:
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _jlist(a: Any) -> Any:
+    arr = np.asarray(a, dtype=np.float64)
+    if arr.ndim == 0:
+        return _jnum(float(arr))
+    return [_jlist(v) for v in arr] if arr.ndim > 1 else [_jnum(v) for v in arr]
+
+
+def _arr(x: Any, what: str) -> np.ndarray:
+    try:
+        return np.array(
+            [np.nan if v is None else v for v in x] if _flat(x) else
+            [[np.nan if v is None else v for v in row] for row in x], dtype=np.float64,
+        )
+    except (TypeError, ValueError) as exc:
+        raise ResultsError(f"{what}: expected a list of numbers ({exc})") from None
+
+
+def _flat(x: Any) -> bool:
+    return not (len(x) and isinstance(x[0], list))
+
+
+def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
+    """Write ``data`` to a temporary file beside ``path`` and rename it into place."""
+    p = Path(path)
+    p.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=p.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, p)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return p
+
+
+def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
+    return atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def _default(o: Any) -> Any:
+    if isinstance(o, np.ndarray):
+        return _jlist(o)
+    if isinstance(o, np.integer):
+        return int(o)
+    if isinstance(o, np.floating):
+        return _jnum(float(o))
+    if isinstance(o, Path):
+        return str(o)
+    raise TypeError(f"cannot write {type(o).__name__} to JSON")
+
+
+def _clean(o: Any) -> Any:
+    """Replace non-finite floats by None (strict JSON)."""
+    if isinstance(o, float):
+        return _jnum(o)
+    if isinstance(o, dict):
+        return {str(k): _clean(v) for k, v in o.items()}
+    if isinstance(o, (list, tuple)):
+        return [_clean(v) for v in o]
+    return o
+
+
+def write_json(path: str | os.PathLike[str], obj: Any) -> Path:
+    """Strict JSON (NaN/inf → null), UTF-8, atomic."""
+    text = json.dumps(_clean(obj), default=_default, ensure_ascii=False, indent=1,
+                      allow_nan=False)
+    return atomic_write_text(path, text + "\n")
+
+
+def write_provenance(folder: str | os.PathLike[str], record: Mapping[str, Any]) -> Path:
+    """``provenance.json`` from a dict given by the pipeline (evtkin version added if absent)."""
+    from evtkin import __version__
+
+    rec = {"evtkin_version": __version__, **dict(record)}
+    return write_json(Path(folder) / "provenance.json", rec)
+
+
+# --------------------------------------------------------------------------------------------------
+# CSV and cutflow
+# --------------------------------------------------------------------------------------------------
+def _flow_edges(edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    lo = np.concatenate([[-np.inf], edges])
+    hi = np.concatenate([edges, [np.inf]])
+    return lo, hi
+
+
+def write_hist_csv(path: str | os.PathLike[str], h: HistResult, sample: str = "") -> Path:
+    """One row per stored bin (flow rows included); band columns ``<band>_down, <band>_up``."""
+    buf = io.StringIO()
+    of = f" of sample {sample!r}" if sample else ""
+    buf.write(f"# evtkin histogram {h.name!r}{of}\n")
+    buf.write(f"# title: {h.title}\n# normalisation: {h.normalisation}; y: {h.y_title}\n")
+    buf.write("# axes: " + "; ".join(a.title for a in h.axes) + "\n")
+    w = csv.writer(buf, lineterminator="\n")
+    bands = list(h.bands)
+    band_cols = [c for b in bands for c in (f"{b}_down", f"{b}_up")]
+    err = h.errors()
+    if h.ndim == 1:
+        lo, hi = _flow_edges(h.axes[0].edges)
+        w.writerow(["lo", "hi", "value", "error", *band_cols])
+        for k in range(h.values.size):
+            extra = [v for b in bands for v in (h.bands[b].down[k], h.bands[b].up[k])]
+            w.writerow([_fmt(x) for x in (lo[k], hi[k], h.values[k], err[k], *extra)])
+    else:
+        xlo, xhi = _flow_edges(h.axes[0].edges)
+        ylo, yhi = _flow_edges(h.axes[1].edges)
+        w.writerow(["x_lo", "x_hi", "y_lo", "y_hi", "value", "error", *band_cols])
+        for i in range(h.values.shape[0]):
+            for j in range(h.values.shape[1]):
+                extra = [v for b in bands for v in (h.bands[b].down[i, j], h.bands[b].up[i, j])]
+                w.writerow([_fmt(x) for x in (xlo[i], xhi[i], ylo[j], yhi[j], h.values[i, j],
+                                              err[i, j], *extra)])
+    return atomic_write_text(path, buf.getvalue())
+
+
+def _fmt(x: float) -> str:
+    x = float(x)
+    if math.isnan(x):
+        return "nan"
+    if math.isinf(x):
+        return "inf" if x > 0 else "-inf"
+    return repr(x)
+
+
+def read_hist_csv(path: str | os.PathLike[str]) -> dict[str, np.ndarray]:
+    """Columns of a histogram CSV as float arrays (comment lines skipped)."""
+    p = Path(path)
+    try:
+        lines = [ln for ln in p.read_text(encoding="utf-8").splitlines() if not ln.startswith("#")]
+    except OSError as exc:
+        raise ResultsError(f"{p}: cannot read ({exc})") from None
+    rows = list(csv.reader(lines))
+    if not rows:
+        raise ResultsError(f"{p}: no header row")
+    header = rows[0]
+    try:
+        data = np.array([[float(v) for v in r] for r in rows[1:]], dtype=np.float64)
+    except ValueError as exc:
+        raise ResultsError(f"{p}: non-numeric value ({exc})") from None
+    data = data.reshape(-1, len(header))
+    return {name: data[:, i] for i, name in enumerate(header)}
+
+
+def _cutflow_rows(steps: Sequence[Mapping[str, Any]]) -> list[dict[str, Any]]:
+    out = []
+    first = prev = None
+    for s in steps:
+        sw = float(s["sum_w"])
+        row = {"step": str(s["step"]), "n_raw": int(s["n_raw"]), "sum_w": sw,
+               "sum_w2": float(s.get("sum_w2", 0.0))}
+        if first is None:
+            first = prev = sw
+        row["eff_step"] = sw / prev if prev else float("nan")
+        row["eff_cum"] = sw / first if first else float("nan")
+        prev = sw
+        out.append(row)
+    return out
+
+
+def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "") -> str:
+    """Aligned text table: step, raw count, Σw ± √Σw², step and cumulative efficiency."""
+    rows = _cutflow_rows(steps)
+    head = ["step", "events", "sum of weights", "± sqrt(Σw²)", "eff. step", "eff. cumul."]
+    body = [[r["step"], str(r["n_raw"]), f"{r['sum_w']:.6g}", f"{math.sqrt(r['sum_w2']):.3g}",
+             f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"] for r in rows]
+    widths = [max(len(x) for x in col) for col in zip(head, *body, strict=False)]
+    lines = [title] if title else []
+    fmt = [lambda s, w: s.ljust(w)] + [lambda s, w: s.rjust(w)] * 5
+    for r in [head, *body]:
+        lines.append("  ".join(f(x, w) for f, x, w in zip(fmt, r, widths, strict=True)))
+        if r is head:
+            lines.append("  ".join("-" * w for w in widths))
+    return "\n".join(lines) + "\n"
+
+
+def write_cutflow(
+    folder: str | os.PathLike[str], sample: str, steps: Sequence[Mapping[str, Any]]
+) -> tuple[Path, Path]:
+    """``cutflow/<sample>.txt`` and ``.csv``."""
+    d = Path(folder) / "cutflow"
+    rows = _cutflow_rows(steps)
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["step", "n_raw", "sum_w", "sum_w2", "eff_step", "eff_cum"])
+    for r in rows:
+        w.writerow([r["step"], r["n_raw"], _fmt(r["sum_w"]), _fmt(r["sum_w2"]),
+                    _fmt(r["eff_step"]), _fmt(r["eff_cum"])])
+    t = atomic_write_text(d / f"{safe_name(sample)}.txt", cutflow_text(steps, f"sample {sample}"))
+    c = atomic_write_text(d / f"{safe_name(sample)}.csv", buf.getvalue())
+    return t, c
+
+
+# --------------------------------------------------------------------------------------------------
+# results folder
+# --------------------------------------------------------------------------------------------------
+def results_to_dict(results: Results) -> dict[str, Any]:
+    from evtkin import __version__
+
+    meta = dict(results.meta)
+    out: dict[str, Any] = {
+        "format": FORMAT,
+        "format_version": FORMAT_VERSION,
+        "evtkin_version": meta.pop("evtkin_version", __version__),
+        "created_utc": meta.pop(
+            "created_utc", datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")),
+        **meta,
+        "samples": {},
+    }
+    for name, s in results.samples.items():
+        out["samples"][name] = {
+            "label": s.label or name,
+            "luminosity_fb": s.luminosity_fb,
+            "xsec": s.xsec,
+            "variations": list(s.variations),
+            "histograms": {k: h.to_dict() for k, h in s.histograms.items()},
+            "cutflow": _cutflow_rows(s.cutflow) if s.cutflow else [],
+        }
+    return out
+
+
+def write_results(
+    folder: str | os.PathLike[str], results: Results, *, csv_tables: bool = True
+) -> Path:
+    """``results.json`` plus ``csv/<sample>/<hist>.csv`` and ``cutflow/<sample>.{txt,csv}``."""
+    root = Path(folder)
+    root.mkdir(parents=True, exist_ok=True)
+    for sname, s in results.samples.items():
+        if csv_tables:
+            for hname, h in s.histograms.items():
+                target = root / "csv" / safe_name(sname) / f"{safe_name(hname)}.csv"
+                write_hist_csv(target, h, sname)
+        if s.cutflow:
+            write_cutflow(root, sname, s.cutflow)
+    return write_json(root / RESULTS_JSON, results_to_dict(results))
+
+
+def _need(d: Mapping[str, Any], key: str, where: str) -> Any:
+    if key not in d:
+        raise ResultsError(f"{where}: missing key {key!r}")
+    return d[key]
+
+
+def _read_hist(name: str, d: Mapping[str, Any], where: str) -> HistResult:
+    axes = []
+    for i, a in enumerate(_need(d, "axes", where)):
+        edges = _arr(_need(a, "edges", f"{where}.axes[{i}]"), f"{where}.axes[{i}].edges")
+        axes.append(AxisInfo(str(a.get("name", "")), str(a.get("label", "")),
+                             str(a.get("unit", "")), str(a.get("kind", "variable")), edges))
+    shape = tuple(a.nbins + 2 for a in axes)
+    values = _arr(_need(d, "values", where), f"{where}.values")
+    variances = _arr(_need(d, "variances", where), f"{where}.variances")
+    for what, arr in (("values", values), ("variances", variances)):
+        if arr.shape != shape:
+            raise ResultsError(
+                f"{where}.{what}: expected shape {shape} (flow bins included), got {arr.shape}")
+    bands = {}
+    for bname, b in (d.get("bands") or {}).items():
+        bw = f"{where}.bands.{bname}"
+        bands[bname] = Band(str(b.get("method", "")), _arr(_need(b, "down", bw), bw + ".down"),
+                            _arr(_need(b, "up", bw), bw + ".up"), list(b.get("members", [])))
+    vv = d.get("variation_values")
+    return HistResult(
+        name=name, title=str(d.get("title", name)), axes=axes,
+        normalisation=str(_need(d, "normalisation", where)), y_label=str(d.get("y_label", "")),
+        y_unit=str(d.get("y_unit", "")), entries=int(d.get("entries", 0)), values=values,
+        variances=variances, bands=bands,
+        norm_includes_flow=bool(d.get("norm_includes_flow", True)),
+        variation_values=None if vv is None else {
+            k: _arr(v, f"{where}.variation_values.{k}") for k, v in vv.items()},
+    )
+
+
+def load_results(folder: str | os.PathLike[str]) -> Results:
+    """Read ``<folder>/results.json`` back into plain objects (arrays as numpy, flow included)."""
+    p = Path(folder)
+    path = p / RESULTS_JSON if p.is_dir() else p
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise ResultsError(f"{path}: no results file (expected {RESULTS_JSON})") from None
+    except json.JSONDecodeError as exc:
+        raise ResultsError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from None
+    if not isinstance(data, dict) or data.get("format") != FORMAT:
+        raise ResultsError(f"{path}: not an evtkin results file (format != {FORMAT!r})")
+    if int(data.get("format_version", 0)) > FORMAT_VERSION:
+        raise ResultsError(f"{path}: format version {data.get('format_version')} is newer than "
+                           f"this evtkin understands ({FORMAT_VERSION})")
+    meta = {k: v for k, v in data.items() if k != "samples"}
+    out = Results(meta=meta)
+    for sname, s in _need(data, "samples", str(path)).items():
+        where = f"{path}: samples.{sname}"
+        hists = {h: _read_hist(h, hd, f"{where}.histograms.{h}")
+                 for h, hd in (s.get("histograms") or {}).items()}
+        out.samples[sname] = SampleResult(
+            name=sname, label=str(s.get("label", sname)), luminosity_fb=s.get("luminosity_fb"),
+            xsec=dict(s.get("xsec") or {}), variations=list(s.get("variations") or []),
+            histograms=hists, cutflow=list(s.get("cutflow") or []),
+        )
+    return out

@@ -1,0 +1,59 @@
+"""Plots are written as valid PNG and PDF files (magic bytes: PNG spec, PDF 1.x header)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from evtkin.hists.bands import envelope
+from evtkin.hists.fill import AxisSpec, HistAccumulator, HistSpec
+from evtkin.hists.normalise import normalise
+from evtkin.output.plots import plot_hist1d, write_plots
+from evtkin.output.tables import Results, SampleResult, hist_result
+
+PNG_MAGIC = b"\x89PNG\r\n\x1a\n"  # PNG specification, file signature
+PDF_MAGIC = b"%PDF-"  # PDF reference, file header
+
+
+def _sample(name: str, shift: float) -> SampleResult:
+    rng = np.random.default_rng(int(shift * 10))
+    x = rng.normal(91.0 + shift, 5.0, 2000)
+    y = rng.normal(0, 1, 2000)
+    w = np.full(2000, 0.5)
+    wv = w[:, None] * rng.uniform(0.9, 1.1, (2000, 2))
+    a = HistAccumulator(HistSpec("mll", (AxisSpec.regular(20, 70, 110, name="mll", label="m_ll",
+                                                          unit="GeV"),), "Dilepton mass"),
+                        ("u", "d"))
+    b = HistAccumulator(HistSpec("mll_y", (a.spec.axes[0], AxisSpec.regular(4, -2, 2, name="y")),
+                                 "mass vs y"))
+    a.fill(x, weight=w, variations=wv)
+    b.fill(x, y, weight=w)
+    na = normalise(a, "xsec_per_bin")
+    return SampleResult(name, name.upper(), histograms={
+        "mll": hist_result(na, {"scale": envelope(na.values[0], na.values[1:])}),
+        "mll_y": hist_result(normalise(b, "xsec_per_bin")),
+    })
+
+
+def test_write_plots(tmp_path: Path) -> None:
+    res = Results({"a": _sample("a", 0.0), "b": _sample("b", 1.5)})
+    files = write_plots(tmp_path, res, note="toy data — not a physics prediction")
+    names = sorted(f.name for f in files)
+    assert names == ["mll.pdf", "mll.png", "mll_y__a.pdf", "mll_y__a.png", "mll_y__b.pdf",
+                     "mll_y__b.png"]
+    for f in files:
+        head = f.read_bytes()[:8]
+        assert head.startswith(PNG_MAGIC if f.suffix == ".png" else PDF_MAGIC)
+        assert f.stat().st_size > 5000
+    assert not list((tmp_path / "plots").glob(".*"))
+
+
+def test_plot_rejects_different_binning(tmp_path: Path) -> None:
+    s = _sample("a", 0.0)
+    h = s.histograms["mll"]
+    other = hist_result(normalise(HistAccumulator(HistSpec("mll", (
+        AxisSpec.regular(10, 70, 110, name="mll"),))), "raw"))
+    with pytest.raises(ValueError, match="different binning"):
+        plot_hist1d(tmp_path / "x", [("a", h), ("b", other)])

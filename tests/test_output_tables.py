@@ -1,0 +1,150 @@
+"""Results JSON / CSV / cutflow writers and the reader (format: docs/results-format.md)."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from evtkin.errors import ResultsError
+from evtkin.hists.bands import envelope
+from evtkin.hists.fill import AxisSpec, HistAccumulator, HistSpec
+from evtkin.hists.normalise import normalise
+from evtkin.output.tables import (
+    Results,
+    SampleResult,
+    cutflow_text,
+    hist_result,
+    load_results,
+    read_hist_csv,
+    write_provenance,
+    write_results,
+)
+
+RNG = np.random.default_rng(99)
+
+
+def _results() -> Results:
+    n = 3000
+    x = RNG.normal(2.0, 2.0, n)
+    y = RNG.normal(0.0, 1.0, n)
+    w = RNG.normal(0.01, 0.02, n)
+    wv = w[:, None] * RNG.normal(1.0, 0.1, (n, 2))
+    s1 = HistSpec("mll", (AxisSpec.variable([0, 1, 2.5, 5], name="mll", label="m_ll",
+                                            unit="GeV"),), "Dilepton mass")
+    s2 = HistSpec("xy", (AxisSpec.regular(3, 0, 3, name="x", unit="GeV"),
+                         AxisSpec.regular(2, -1, 1, name="y")), "2-D")
+    a1 = HistAccumulator(s1, ("up", "down"))
+    a2 = HistAccumulator(s2, ("up", "down"))
+    a1.fill(x, weight=w, variations=wv)
+    a2.fill(x, y, weight=w, variations=wv)
+    n1 = normalise(a1, "xsec_per_bin")
+    n2 = normalise(a2, "unit_area")
+    h1 = hist_result(n1, {"scale": envelope(n1.values[0], n1.values[1:], ["up", "down"])},
+                     keep_variations=True)
+    h2 = hist_result(n2, {"scale": envelope(n2.values[0], n2.values[1:])})
+    cut = [{"step": "all", "n_raw": n, "sum_w": 30.0, "sum_w2": 1.5},
+           {"step": "two leptons", "n_raw": 1200, "sum_w": 12.0, "sum_w2": 0.6},
+           {"step": "mass window", "n_raw": 300, "sum_w": 3.0, "sum_w2": 0.15}]
+    s = SampleResult("dy toy", "Drell-Yan (toy)", 139.0, {"sigma_pb": 30.0, "n_eff": 2900.5},
+                     ["up", "down"], {"mll": h1, "xy": h2}, cut)
+    return Results({"dy toy": s}, {"note": "toy data — not a physics prediction"})
+
+
+def test_json_round_trip(tmp_path: Path) -> None:
+    res = _results()
+    write_results(tmp_path, res)
+    back = load_results(tmp_path)
+    assert back.meta["format"] == "evtkin-results"
+    assert back.meta["format_version"] == 1
+    assert back.meta["note"] == "toy data — not a physics prediction"
+    s = back.samples["dy toy"]
+    assert s.label == "Drell-Yan (toy)"
+    assert s.luminosity_fb == 139.0
+    assert s.xsec["n_eff"] == 2900.5
+    for name, h in res.samples["dy toy"].histograms.items():
+        b = s.histograms[name]
+        assert np.array_equal(b.values, h.values)  # repr round trip of floats is exact
+        assert np.array_equal(b.variances, h.variances)
+        assert [a.edges.tolist() for a in b.axes] == [a.edges.tolist() for a in h.axes]
+        assert b.axes[0].unit == h.axes[0].unit
+        assert b.normalisation == h.normalisation
+        assert np.array_equal(b.bands["scale"].up, h.bands["scale"].up)
+        assert b.values.shape == tuple(a.nbins + 2 for a in b.axes)  # flow included
+    assert s.histograms["mll"].variation_values is not None
+    assert s.histograms["mll"].y_unit == "pb/GeV"
+    # cutflow efficiencies: hand computation 12/30 and 3/12, 3/30
+    cf = s.cutflow
+    assert [round(r["eff_step"], 12) for r in cf] == [1.0, 0.4, 0.25]
+    assert cf[-1]["eff_cum"] == pytest.approx(0.1)
+
+
+def test_json_is_strict_and_nan_becomes_null(tmp_path: Path) -> None:
+    res = _results()
+    h = res.samples["dy toy"].histograms["mll"]
+    h.values[0] = np.nan
+    write_results(tmp_path, res)
+    text = (tmp_path / "results.json").read_text(encoding="utf-8")
+    json.loads(text, parse_constant=lambda c: pytest.fail(f"non-standard JSON constant {c}"))
+    back = load_results(tmp_path)
+    assert math.isnan(back.samples["dy toy"].histograms["mll"].values[0])
+
+
+def test_csv_round_trip(tmp_path: Path) -> None:
+    res = _results()
+    write_results(tmp_path, res)
+    h = res.samples["dy toy"].histograms["mll"]
+    cols = read_hist_csv(tmp_path / "csv" / "dy_toy" / "mll.csv")
+    assert list(cols) == ["lo", "hi", "value", "error", "scale_down", "scale_up"]
+    assert cols["lo"][0] == -np.inf
+    assert cols["hi"][-1] == np.inf
+    assert cols["lo"][1:].tolist() == [0.0, 1.0, 2.5, 5.0]
+    assert np.array_equal(cols["value"], h.values)
+    assert np.array_equal(cols["error"], np.sqrt(h.variances))
+    assert np.array_equal(cols["scale_up"], h.bands["scale"].up)
+    c2 = read_hist_csv(tmp_path / "csv" / "dy_toy" / "xy.csv")
+    h2 = res.samples["dy toy"].histograms["xy"]
+    assert np.array_equal(c2["value"], h2.values.ravel())  # x outer loop
+    assert c2["x_lo"][0] == -np.inf
+    assert c2["y_hi"][-1] == np.inf
+
+
+def test_cutflow_files(tmp_path: Path) -> None:
+    write_results(tmp_path, _results())
+    txt = (tmp_path / "cutflow" / "dy_toy.txt").read_text(encoding="utf-8")
+    assert "two leptons" in txt
+    assert "0.4000" in txt
+    assert "1.22" in txt  # sqrt(1.5) = 1.2247 (√Σw² error)
+    lines = (tmp_path / "cutflow" / "dy_toy.csv").read_text(encoding="utf-8").splitlines()
+    assert lines[0] == "step,n_raw,sum_w,sum_w2,eff_step,eff_cum"
+    assert lines[3].startswith("mass window,300,3.0,0.15,0.25,")
+    assert cutflow_text([]).count("\n") == 2  # header + rule only
+
+
+def test_provenance_and_no_temporary_files_left(tmp_path: Path) -> None:
+    p = write_provenance(tmp_path, {"config_sha256": "ab" * 32, "inputs": [{"path": "a.lhe"}]})
+    rec = json.loads(p.read_text(encoding="utf-8"))
+    assert rec["evtkin_version"]
+    assert rec["inputs"][0]["path"] == "a.lhe"
+    write_results(tmp_path, _results())
+    assert not [f for f in tmp_path.rglob("*") if f.name.endswith(".tmp")]
+
+
+def test_reader_errors(tmp_path: Path) -> None:
+    with pytest.raises(ResultsError, match="no results file"):
+        load_results(tmp_path)
+    (tmp_path / "results.json").write_text('{"format": "other"}', encoding="utf-8")
+    with pytest.raises(ResultsError, match="not an evtkin results file"):
+        load_results(tmp_path)
+    (tmp_path / "results.json").write_text('{"format": \n oops', encoding="utf-8")
+    with pytest.raises(ResultsError, match=r"results.json:2"):
+        load_results(tmp_path)
+    write_results(tmp_path, _results())
+    data = json.loads((tmp_path / "results.json").read_text(encoding="utf-8"))
+    data["samples"]["dy toy"]["histograms"]["mll"]["values"] = [1.0, 2.0]
+    (tmp_path / "results.json").write_text(json.dumps(data), encoding="utf-8")
+    with pytest.raises(ResultsError, match=r"histograms\.mll\.values: expected shape \(5,\)"):
+        load_results(tmp_path)
