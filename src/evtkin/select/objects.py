@@ -1,0 +1,255 @@
+"""Object definitions: particle classes by PDG id, thresholds, pT ordering, isolation, overlap
+removal and missing transverse momentum.
+
+All functions take jagged awkward arrays ``[event][object]`` of four-momentum records (see
+:mod:`evtkin.select.kinematics` for the accepted fields) and work on whole arrays.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Mapping, Sequence
+from typing import Any
+
+import awkward as ak
+import numpy as np
+from numba import njit
+
+from evtkin.errors import ConfigError
+from evtkin.select import kinematics as kin
+
+__all__ = [
+    "PDG_CLASSES",
+    "apply_overlap_removal",
+    "isolated",
+    "match_pdgid",
+    "missing_pt",
+    "pdgids_of",
+    "remove_overlaps",
+    "select",
+    "sort_by_pt",
+]
+
+# Particle classes by PDG Monte Carlo particle number (PDG review "Monte Carlo particle numbering
+# scheme"): 1-6 quarks d u s c b t, 11-16 leptons e ν_e μ ν_μ τ ν_τ, 21 gluon, 22 photon.
+# Matching is on |pdgid| unless asked otherwise, so each class holds particles and antiparticles.
+PDG_CLASSES: dict[str, tuple[int, ...]] = {
+    "electrons": (11,),
+    "muons": (13,),
+    "taus": (15,),
+    "charged_leptons": (11, 13, 15),
+    "light_leptons": (11, 13),
+    "neutrinos": (12, 14, 16),
+    "light_quarks": (1, 2, 3, 4),
+    "gluons": (21,),
+    "b_quarks": (5,),
+    "top_quarks": (6,),
+    "photons": (22,),
+    "jets": (1, 2, 3, 4, 21),
+    "jets_with_b": (1, 2, 3, 4, 5, 21),
+    "w_bosons": (24,),
+    "z_bosons": (23,),
+    "higgs_bosons": (25,),
+}
+
+Array = Any
+
+
+def pdgids_of(
+    spec: str | Iterable[int], classes: Mapping[str, Sequence[int]] | None = None
+) -> tuple[int, ...]:
+    """Resolve a class name (of ``classes``, default :data:`PDG_CLASSES`) or an iterable of ids."""
+    table = PDG_CLASSES if classes is None else classes
+    if isinstance(spec, str):
+        if spec not in table:
+            raise ConfigError(
+                f"unknown particle class {spec!r}; expected one of {', '.join(sorted(table))} "
+                "or a list of PDG ids"
+            )
+        return tuple(int(i) for i in table[spec])
+    return tuple(int(i) for i in spec)
+
+
+def match_pdgid(pdgid: Array, ids: str | Iterable[int], *, signed: bool = False) -> Array:
+    """Boolean mask: ``pdgid`` is one of ``ids`` (compared on |id| unless ``signed``)."""
+    wanted = pdgids_of(ids)
+    values = pdgid if signed else np.abs(pdgid)
+    mask = values != values  # all False, same shape
+    for i in wanted:
+        mask = mask | (values == (i if signed else abs(i)))
+    return mask
+
+
+def sort_by_pt(objs: Array, *, ascending: bool = False) -> Array:
+    """Sort each event's objects by pT (descending by default; stable for ties)."""
+    order = ak.argsort(kin.pt(objs), axis=-1, ascending=ascending, stable=True)
+    return objs[order]
+
+
+def select(
+    particles: Array,
+    *,
+    pdgids: str | Iterable[int] | None = None,
+    status: int | Iterable[int] | None = None,
+    pt_min: float | None = None,
+    abs_eta_max: float | None = None,
+    abs_rapidity_max: float | None = None,
+    mask: Array | None = None,
+    signed: bool = False,
+    sort: bool = True,
+) -> Array:
+    """Select objects and return them pT-ordered (unless ``sort=False``).
+
+    ``pdgids`` is a class name of :data:`PDG_CLASSES` or ids (matched on |id| unless ``signed``);
+    ``status`` one status or several (LHEF ISTUP: 1 final state, 2 resonance, -1 incoming); the cuts
+    are pT > ``pt_min``, |η| < ``abs_eta_max``, |y| < ``abs_rapidity_max``; ``mask`` is an extra
+    jagged boolean mask of the same shape as ``particles``. ``None`` disables a condition.
+    """
+    keep = ak.ones_like(kin.components(particles)[0], dtype=bool)
+    if pdgids is not None:
+        keep = keep & match_pdgid(particles["pdgid"], pdgids, signed=signed)
+    if status is not None:
+        statuses = (status,) if isinstance(status, (int, np.integer)) else tuple(status)
+        st = particles["status"]
+        smask = st != st
+        for s in statuses:
+            smask = smask | (st == int(s))
+        keep = keep & smask
+    if pt_min is not None:
+        keep = keep & (kin.pt(particles) > pt_min)
+    if abs_eta_max is not None:
+        keep = keep & (np.abs(kin.eta(particles)) < abs_eta_max)
+    if abs_rapidity_max is not None:
+        keep = keep & (np.abs(kin.rapidity(particles)) < abs_rapidity_max)
+    if mask is not None:
+        keep = keep & mask
+    out = particles[keep]
+    return sort_by_pt(out) if sort else out
+
+
+@njit(nogil=True, cache=True)
+def _near_kernel(
+    a: np.ndarray,
+    a_off: np.ndarray,
+    b: np.ndarray,
+    b_off: np.ndarray,
+    dr: float,
+    exclude_self: bool,
+) -> np.ndarray:
+    """Rows of ``a``/``b``: (rapidity or η, φ, px, py, pz, E). True where some b is within dr."""
+    out = np.zeros(a.shape[0], dtype=np.bool_)
+    dr2 = dr * dr
+    for ev in range(a_off.shape[0] - 1):
+        for i in range(a_off[ev], a_off[ev + 1]):
+            for j in range(b_off[ev], b_off[ev + 1]):
+                if exclude_self and (
+                    a[i, 2] == b[j, 2]
+                    and a[i, 3] == b[j, 3]
+                    and a[i, 4] == b[j, 4]
+                    and a[i, 5] == b[j, 5]
+                ):
+                    continue
+                dphi = abs(a[i, 1] - b[j, 1])
+                if dphi > math.pi:
+                    dphi = 2.0 * math.pi - dphi
+                deta = a[i, 0] - b[j, 0]
+                if deta * deta + dphi * dphi < dr2:
+                    out[i] = True
+                    break
+    return out
+
+
+def _flat_table(objs: Array, use_rapidity: bool) -> tuple[np.ndarray, np.ndarray]:
+    px, py, pz, e = kin.components(objs)
+    counts = ak.to_numpy(ak.num(px, axis=1)).astype(np.int64)
+    offsets = np.zeros(counts.size + 1, dtype=np.int64)
+    np.cumsum(counts, out=offsets[1:])
+    cols = [
+        kin.rapidity(objs) if use_rapidity else kin.eta(objs),
+        kin.phi(objs),
+        px,
+        py,
+        pz,
+        e,
+    ]
+    table = np.stack([ak.to_numpy(ak.flatten(c, axis=1)).astype(np.float64) for c in cols], axis=1)
+    return np.ascontiguousarray(table), offsets
+
+
+def _closest_distance_mask(
+    objs: Array, others: Array, dr: float, *, use_rapidity: bool, exclude_self: bool
+) -> Array:
+    """Jagged mask over ``objs``: True where some object of ``others`` lies within ``dr``."""
+    a, a_off = _flat_table(objs, use_rapidity)
+    b, b_off = _flat_table(others, use_rapidity)
+    if a_off.size != b_off.size:
+        raise ValueError(
+            f"objects and others must have the same number of events ({a_off.size - 1} "
+            f"vs {b_off.size - 1})"
+        )
+    near = _near_kernel(a, a_off, b, b_off, float(dr), bool(exclude_self))
+    return ak.unflatten(near, np.diff(a_off))
+
+
+def isolated(
+    objs: Array,
+    others: Array,
+    dr: float,
+    *,
+    use_rapidity: bool = False,
+    exclude_self: bool = True,
+) -> Array:
+    """Jagged boolean mask over ``objs``: no object of ``others`` within ΔR < ``dr``
+    (``[event][object]`` arrays with the same number of events).
+
+    ``others`` may be the same collection or contain the objects themselves: with ``exclude_self``
+    a partner with exactly the same four-momentum is taken to be the object itself and ignored.
+    ΔR uses pseudorapidity unless ``use_rapidity``.
+    """
+    return ~_closest_distance_mask(
+        objs, others, dr, use_rapidity=use_rapidity, exclude_self=exclude_self
+    )
+
+
+def remove_overlaps(
+    objs: Array, reference: Array, dr: float, *, use_rapidity: bool = False
+) -> Array:
+    """Drop the objects of ``objs`` that lie within ΔR < ``dr`` of any object of ``reference``
+    (e.g. jets near a selected lepton). Order within events is kept."""
+    near = _closest_distance_mask(
+        objs, reference, dr, use_rapidity=use_rapidity, exclude_self=False
+    )
+    return objs[~near]
+
+
+def apply_overlap_removal(
+    collections: Mapping[str, Array],
+    steps: Sequence[tuple[str, str, float]],
+    *,
+    use_rapidity: bool = False,
+) -> dict[str, Array]:
+    """Apply overlap removal steps ``(target, reference, dr)`` in the declared order.
+
+    Each step removes objects of ``collections[target]`` within ``dr`` of the *current* (already
+    cleaned) ``collections[reference]``, so the order matters. Returns a new dict.
+    """
+    out = dict(collections)
+    for n, (target, reference, dr) in enumerate(steps, start=1):
+        for name in (target, reference):
+            if name not in out:
+                raise ConfigError(
+                    f"overlap removal step {n}: unknown collection {name!r}; "
+                    f"expected one of {', '.join(sorted(out))}"
+                )
+        out[target] = remove_overlaps(out[target], out[reference], dr, use_rapidity=use_rapidity)
+    return out
+
+
+def missing_pt(invisibles: Array, axis: int = -1) -> ak.Array:
+    """Missing transverse momentum: the vector pT sum of the invisible objects per event (at
+    generator level, the neutrinos), as ``vector`` ``Momentum2D`` records with fields ``px, py``
+    (``.pt`` and ``.phi`` work)."""
+    px, py = kin.transverse_components(invisibles)
+    return ak.zip(
+        {"px": ak.sum(px, axis=axis), "py": ak.sum(py, axis=axis)}, with_name="Momentum2D"
+    )
