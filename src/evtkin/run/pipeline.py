@@ -1,0 +1,286 @@
+"""The run pipeline: config → plan → work units → partial results → merge → normalise → outputs.
+
+:func:`run` is the Python API behind ``evtkin run``. Histograms are filled per file and per
+process with the weights as written (XWGTUP and the variation weights); after the merge,
+:func:`evtkin.hists.xsec.combine_files` turns each file's totals into per-process factors
+(IDWTUP rules, several files of a sample combined, optional user cross section), the
+accumulators are scaled and summed per sample, and :func:`evtkin.hists.normalise.normalise`
+applies the histogram's normalisation with propagated MC-statistics variances.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+import platform
+import sys
+import time
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from evtkin.config import AnalysisConfig, SampleSpec, load_config
+from evtkin.errors import ConfigError
+from evtkin.hists.fill import HistAccumulator
+from evtkin.hists.normalise import NormalisedHist, normalise
+from evtkin.hists.xsec import FileTotals, ProcessDecl, RunDecl, XsecResult, combine_files
+from evtkin.run.executors import Executor, SerialExecutor
+from evtkin.run.partial import PartialResult, merge_all
+from evtkin.run.plan import Plan, build_plan
+from evtkin.run.units import make_units
+
+__all__ = ["RunResult", "SampleResult", "finalise", "run"]
+
+
+@dataclass
+class SampleResult:
+    """Everything evtkin knows about one sample after a run (normalised)."""
+
+    name: str
+    label: str
+    luminosity_fb: float | None
+    toy: bool
+    xsec: XsecResult | None
+    variations: tuple[str, ...]
+    histograms: dict[str, NormalisedHist]
+    #: per histogram: Σw, Σw² with the normalised per-event weights (before the normalisation mode)
+    weighted: dict[str, HistAccumulator]
+    cutflow: list[dict[str, Any]]
+    n_events: int
+
+
+@dataclass
+class RunResult:
+    """What :func:`run` returns: ``result[sample][histogram]`` is a ``hist.Hist`` (Weight storage,
+    normalised as the config asks)."""
+
+    samples: dict[str, SampleResult]
+    provenance: dict[str, Any]
+    out: Path | None = None
+    seconds: dict[str, float] = field(default_factory=dict)
+
+    def __getitem__(self, sample: str) -> dict[str, Any]:
+        return self.hists(sample)
+
+    def hists(self, sample: str) -> dict[str, Any]:
+        """``{histogram name: hist.Hist}`` of one sample (nominal weight)."""
+        s = self.samples[sample]
+        return {name: _to_hist(nh) for name, nh in s.histograms.items()}
+
+    @property
+    def histograms(self) -> dict[str, dict[str, Any]]:
+        return {name: self.hists(name) for name in self.samples}
+
+
+def _to_hist(nh: NormalisedHist, variation: int = 0) -> Any:
+    acc = HistAccumulator(nh.spec, nh.variations, nh.entries,
+                          np.ascontiguousarray(np.moveaxis(nh.values, 0, -1)),
+                          np.ascontiguousarray(np.moveaxis(nh.variances, 0, -1)))
+    return acc.to_hist(variation)
+
+
+# --------------------------------------------------------------------------- finalising
+
+def _run_decl(info: Any, path: str) -> RunDecl:
+    tot = info.xsecinfo.get("totxsec") if info.xsecinfo else None
+    try:
+        totxsec = float(tot) if tot is not None else None
+    except ValueError:
+        totxsec = None
+    return RunDecl(
+        idwtup=int(info.weighting),
+        processes=tuple(ProcessDecl(p.process_id, p.xsec_pb, p.xsec_err_pb, p.max_weight)
+                        for p in info.processes),
+        totxsec_pb=totxsec,
+        source=path,
+    )
+
+
+def _file_totals(partial: PartialResult, sample: str, index: int) -> FileTotals:
+    out = FileTotals()
+    for (s, i, pid), t in partial.totals.items():
+        if (s, i) != (sample, index):
+            continue
+        out = out + FileTotals({pid: t.n_events}, {pid: t.sum_w}, {pid: t.sum_w2},
+                               {pid: t.sum_abs_w}, t.n_negative)
+    return out
+
+
+def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> SampleResult:
+    name = spec.name
+    files = sorted(i for (s, i) in partial.files if s == name)
+    records = [partial.files[(name, i)] for i in files]
+    n_events = sum(r.n_events for r in records)
+    variation_sets = {tuple(r.info.weight_names) for r in records if r.info is not None}
+    if len(variation_sets) > 1:
+        raise ConfigError(
+            f"{plan.config.source}: samples.{name}: the files declare different variation "
+            "weights; split them into separate samples"
+        )
+    variations = tuple(str(v) for v in (variation_sets.pop() if variation_sets else ()))
+    xsec: XsecResult | None = None
+    factor: Callable[[int, int], float]
+    if n_events > 0:
+        try:
+            xsec = combine_files(
+                [(_run_decl(r.info, r.path), _file_totals(partial, name, r.index))
+                 for r in records],
+                override_pb=spec.cross_section_pb,
+            )
+        except ValueError as exc:
+            raise ConfigError(f"samples.{name}: {exc}") from None
+        position = {i: k for k, i in enumerate(files)}
+        xs = xsec
+
+        def factor(file_index: int, pid: int) -> float:
+            return xs.factor(pid, position[file_index])
+    else:
+        def factor(file_index: int, pid: int) -> float:
+            return 0.0
+
+    weighted: dict[str, HistAccumulator] = {}
+    normalised: dict[str, NormalisedHist] = {}
+    for hname in plan.histograms_for(name):
+        hspec = plan.config.histograms[hname]
+        acc = HistAccumulator(plan.hist_specs[hname], variations)
+        for (s, h, i, pid), part in sorted(partial.hists.items()):
+            if s == name and h == hname:
+                f = factor(i, pid)
+                acc._w += f * part._w
+                acc._w2 += (f * f) * part._w2
+                acc.entries += part.entries
+        weighted[hname] = acc
+        try:
+            normalised[hname] = normalise(acc, hspec.normalise, luminosity_fb=spec.luminosity_fb)
+        except ValueError as exc:
+            raise ConfigError(f"histograms.{hname} for sample {name!r}: {exc}") from None
+
+    rows = plan.cutflow_rows
+    n_raw = np.zeros(len(rows), np.int64)
+    sum_w = np.zeros(len(rows))
+    sum_w2 = np.zeros(len(rows))
+    for (s, i, pid), cf in sorted(partial.cutflows.items()):
+        if s == name:
+            f = factor(i, pid)
+            n_raw += cf.n_raw
+            sum_w += f * cf.sum_w
+            sum_w2 += f * f * cf.sum_w2
+    cutflow = []
+    for k, step in enumerate(rows):
+        prev = sum_w[k - 1] if k else sum_w[0]
+        cutflow.append({
+            "step": step,
+            "n_raw": int(n_raw[k]),
+            "sum_w": float(sum_w[k]),
+            "sum_w2": float(sum_w2[k]),
+            "eff_step": float(sum_w[k] / prev) if prev else math.nan,
+            "eff_cum": float(sum_w[k] / sum_w[0]) if sum_w[0] else math.nan,
+        })
+    return SampleResult(name, spec.label, spec.luminosity_fb, spec.toy, xsec, variations,
+                        normalised, weighted, cutflow, n_events)
+
+
+def finalise(plan: Plan, partial: PartialResult) -> dict[str, SampleResult]:
+    """Normalise a merged partial result, sample by sample."""
+    return {name: _sample_result(plan, spec, partial)
+            for name, spec in plan.config.samples.items()}
+
+
+# --------------------------------------------------------------------------- provenance
+
+def _versions() -> dict[str, str]:
+    import awkward
+    import numba
+    import uproot
+    import vector
+
+    from evtkin import __version__
+
+    return {"evtkin": __version__, "python": platform.python_version(),
+            "numpy": np.__version__, "awkward": awkward.__version__,
+            "vector": vector.__version__, "numba": numba.__version__,
+            "uproot": uproot.__version__}
+
+
+def _provenance(plan: Plan, partial: PartialResult, samples: Mapping[str, SampleResult],
+                started: _dt.datetime, seconds: float) -> dict[str, Any]:
+    cfg = plan.config
+    inputs = []
+    for (sample, index), rec in sorted(partial.files.items()):
+        inputs.append({"sample": sample, "index": index, "path": rec.path, "size": rec.size,
+                       "sha256": rec.sha256, "events": rec.n_events})
+    return {
+        "evtkin_version": _versions()["evtkin"],
+        "versions": _versions(),
+        "command": " ".join(sys.argv) if sys.argv and sys.argv[0] else None,
+        "config": {"source": cfg.source, "sha256": cfg.sha256, "text": cfg.text},
+        "analysis": cfg.name,
+        "started_utc": started.strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "run_seconds": round(seconds, 3),
+        "stage_seconds": {k: round(v, 3) for k, v in partial.seconds.items()},
+        "step_size": plan.step_size,
+        "max_events_per_file": plan.max_events,
+        "inputs": inputs,
+        "cross_sections": {
+            name: (s.xsec.to_dict() if s.xsec is not None else None) for name, s in samples.items()
+        },
+    }
+
+
+# --------------------------------------------------------------------------- entry point
+
+def _progress(enabled: bool | None) -> tuple[Callable[[int], None] | None, Any]:
+    if enabled is None:
+        enabled = sys.stderr.isatty()
+    if not enabled:
+        return None, None
+    from tqdm import tqdm
+
+    bar = tqdm(unit=" events", unit_scale=True, dynamic_ncols=True, desc="evtkin run",
+               file=sys.stderr)
+    return bar.update, bar
+
+
+def run(
+    config: str | Path | Mapping[str, Any] | AnalysisConfig,
+    *,
+    out: str | Path | None = None,
+    max_events: int | None = None,
+    step_size: int | None = None,
+    progress: bool | None = False,
+    executor: Executor | None = None,
+) -> RunResult:
+    """Run an analysis and return its normalised histograms (``result[sample][hist]``).
+
+    ``config``: a TOML path, a mapping (relative sample paths against the working
+    directory) or an :class:`~evtkin.config.AnalysisConfig`. ``out``: write the results
+    folder there (default: the config's ``[output] directory``, else nothing is written).
+    ``max_events``: read at most this many events from each input file. ``step_size``:
+    events per chunk (results do not depend on it). ``progress``: show a progress bar
+    (``None``: only on a terminal).
+    """
+    started = _dt.datetime.now(_dt.timezone.utc)
+    t0 = time.perf_counter()
+    cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
+    plan = build_plan(cfg, step_size=step_size, max_events=max_events)
+    units = make_units(plan)
+    update, bar = _progress(progress)
+    try:
+        partial = merge_all((executor or SerialExecutor()).run(plan, units, update))
+    finally:
+        if bar is not None:
+            bar.close()
+    samples = finalise(plan, partial)
+    seconds = time.perf_counter() - t0
+    provenance = _provenance(plan, partial, samples, started, seconds)
+    result = RunResult(samples, provenance, None, dict(partial.seconds))
+    target = Path(out) if out is not None else cfg.output.directory
+    if target is not None:
+        from evtkin.run.outputs import write_outputs
+
+        write_outputs(plan, result, target)
+        result.out = target
+    return result

@@ -1,0 +1,277 @@
+"""The run plan: a validated config turned into what every chunk of events goes through.
+
+:class:`Plan` is picklable (plain dataclasses, parsed expression trees, histogram specs),
+so any executor can ship it to workers. :func:`analyse_chunk` runs the physics on one
+chunk of events: objects (thresholds, isolation, anti-kT, overlap removal in the declared
+order), missing pT, the ordered selection steps, composites and derived quantities (both
+computed lazily, only when a step or histogram asks for them), and returns the masks and
+the values to histogram. All of it is whole-array awkward/numpy work through
+:mod:`evtkin.select`; there is no per-event Python loop.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import awkward as ak
+import numpy as np
+
+from evtkin.config import AnalysisConfig, CompositeSpec, ObjectSpec
+from evtkin.errors import ConfigError
+from evtkin.expr import Expression, ExpressionError, evaluate
+from evtkin.hists.fill import AxisSpec, HistSpec
+from evtkin.select import composites as comp
+from evtkin.select import jets as jetalg
+from evtkin.select import objects as obj
+from evtkin.select import truth
+
+__all__ = ["ChunkView", "Plan", "analyse_chunk", "build_plan", "hist_entries"]
+
+#: rows of every cutflow: "all events" then one per step
+ALL_EVENTS = "all events"
+
+
+@dataclass(frozen=True)
+class Plan:
+    """Everything a worker needs to process a unit of work."""
+
+    config: AnalysisConfig
+    hist_specs: dict[str, HistSpec]
+    step_size: int
+    max_events: int | None = None
+
+    @property
+    def cutflow_rows(self) -> tuple[str, ...]:
+        return (ALL_EVENTS, *(s.name for s in self.config.steps))
+
+    def histograms_for(self, sample: str) -> list[str]:
+        return [n for n, h in self.config.histograms.items()
+                if h.samples is None or sample in h.samples]
+
+
+DEFAULT_STEP_SIZE = 100_000
+
+
+def build_plan(config: AnalysisConfig, *, step_size: int | None = None,
+               max_events: int | None = None) -> Plan:
+    """Turn a validated config into a :class:`Plan` (histogram specs for the fill layer)."""
+    if step_size is not None and step_size <= 0:
+        raise ConfigError(f"step size must be a positive number of events, got {step_size}")
+    if max_events is not None and max_events < 0:
+        raise ConfigError(f"max events must be >= 0, got {max_events}")
+    specs: dict[str, HistSpec] = {}
+    for name, h in config.histograms.items():
+        axes = []
+        for key, a in zip(("x", "y"), h.axes, strict=False):
+            if a.regular:
+                ax = AxisSpec.regular(len(a.edges) - 1, a.edges[0], a.edges[-1], name=key,
+                                      label=a.label, unit=a.unit)
+            else:
+                ax = AxisSpec.variable(a.edges, name=key, label=a.label, unit=a.unit)
+            axes.append(ax)
+        specs[name] = HistSpec(name, tuple(axes), h.title)
+    size = step_size or config.step_size or DEFAULT_STEP_SIZE
+    return Plan(config, specs, size, max_events)
+
+
+# --------------------------------------------------------------------------- objects
+
+def _build_object(spec: ObjectSpec, particles: Any) -> Any:
+    mask = None
+    if spec.from_decay_of:
+        mask = truth.descends_from(particles, spec.from_decay_of)
+    if spec.cluster_radius is not None:
+        inputs = obj.select(particles, pdgids=spec.pdgids, status=spec.status, mask=mask,
+                            sort=False)
+        jets = jetalg.antikt(inputs, spec.cluster_radius)
+        out = obj.select(jets, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
+                         abs_rapidity_max=spec.max_abs_rapidity)
+    else:
+        out = obj.select(particles, pdgids=spec.pdgids, status=spec.status, pt_min=spec.min_pt,
+                         abs_eta_max=spec.max_abs_eta, abs_rapidity_max=spec.max_abs_rapidity,
+                         mask=mask)
+    if spec.isolation_against:
+        others = obj.select(particles, pdgids=spec.isolation_against, status=1,
+                            pt_min=spec.isolation_min_pt or None, sort=False)
+        assert spec.isolation_dr is not None
+        out = out[obj.isolated(out, others, spec.isolation_dr)]
+    return out
+
+
+def _leading(collection: Any) -> Any:
+    return ak.firsts(collection, axis=1)
+
+
+def _build_composite(spec: CompositeSpec, get: Callable[[str], Any]) -> Any:
+    o = spec.options
+    if spec.build == "pair":
+        kwargs = dict(mass_window=o["mass_window"], dr_min=o["min_dr"], dr_max=o["max_dr"],
+                      opposite_charge=o["opposite_charge"])
+        if len(spec.inputs) == 1:
+            cands = comp.combinations(get(spec.inputs[0]), 2, **kwargs)
+        else:
+            cands = comp.cartesian(get(spec.inputs[0]), get(spec.inputs[1]), **kwargs)
+        if o["same_flavour"]:
+            cands = cands[np.abs(cands["d0"]["pdgid"]) == np.abs(cands["d1"]["pdgid"])]
+        if o["best_mass"] is not None:
+            return comp.best_by_mass(cands, o["best_mass"])
+        return cands
+    if spec.build == "leptonic_w":
+        lepton = _leading(get(spec.inputs[0]))
+        nu, w = comp.leptonic_w(lepton, get(spec.inputs[1]), m_w=o["w_mass"], choice=o["root"])
+        fields = {f: w[f] for f in ak.fields(w)}
+        return ak.zip({**fields, "neutrino": nu, "lepton": lepton}, with_name="Momentum4D",
+                      depth_limit=1)
+    # ttbar_lepton_jets
+    lepton = _leading(get(spec.inputs[0]))
+    jets = get(spec.inputs[1])
+    nu, _ = comp.leptonic_w(lepton, get(spec.inputs[2]), m_w=o["w_mass"],
+                            choice=o["neutrino_root"])
+    bmask = None
+    if o["use_b_tags"]:
+        fields = ak.fields(jets)
+        bmask = jets["btag"] if "btag" in fields else np.abs(jets["pdgid"]) == 5
+    return comp.ttbar_lepton_jets(
+        lepton, nu, jets, bmask, m_w=o["w_mass"], m_t=o["top_mass"],
+        sigma_w=o["w_resolution"], sigma_t=o["top_resolution"], max_jets=o["max_jets"],
+    )
+
+
+class ChunkView:
+    """The names an expression can use on one chunk, computed on first use and cached."""
+
+    def __init__(self, plan: Plan, chunk: Any) -> None:
+        self.plan = plan
+        self.chunk = chunk
+        self._cache: dict[str, Any] = {}
+        self._busy: set[str] = set()
+        cfg = plan.config
+        particles = chunk["particles"]
+        objs = {name: _build_object(spec, particles) for name, spec in cfg.objects.items()}
+        if cfg.overlap_removal:
+            objs = obj.apply_overlap_removal(
+                objs, [(o.remove, o.near, o.within_dr) for o in cfg.overlap_removal]
+            )
+        self._cache.update(objs)
+        if cfg.missing_pt is not None:
+            invisible = obj.select(particles, pdgids=cfg.missing_pt.pdgids, status=1, sort=False)
+            self._cache[cfg.missing_pt.name] = obj.missing_pt(invisible)
+
+    def __len__(self) -> int:
+        return len(self.chunk)
+
+    def resolve(self, name: str) -> Any:
+        if name in self._cache:
+            return self._cache[name]
+        cfg = self.plan.config
+        if name == "particles":
+            value = self.chunk["particles"]
+        elif name in ("weight", "scale", "alpha_qcd", "alpha_qed", "process_id"):
+            value = self.chunk[name]
+        elif name in cfg.composites:
+            value = self._guarded(name, lambda: _build_composite(cfg.composites[name],
+                                                                 self.resolve))
+        elif name in cfg.quantities:
+            value = self._guarded(name, lambda: evaluate(cfg.quantities[name], self.resolve))
+        else:
+            raise KeyError(name)
+        self._cache[name] = value
+        return value
+
+    def _guarded(self, name: str, compute: Callable[[], Any]) -> Any:
+        if name in self._busy:  # pragma: no cover - configs with cycles are rejected earlier
+            raise ConfigError(f"{name!r} refers to itself")
+        self._busy.add(name)
+        try:
+            return compute()
+        finally:
+            self._busy.discard(name)
+
+    def evaluate(self, expr: Expression, where: str) -> Any:
+        try:
+            return evaluate(expr, self.resolve)
+        except ExpressionError as exc:
+            raise ConfigError(exc.render(f"{self.plan.config.source}: {where}: ")) from None
+
+
+def analyse_chunk(plan: Plan, chunk: Any) -> tuple[ChunkView, list[np.ndarray]]:
+    """Objects and the cumulative selection masks of one chunk.
+
+    Returns the view (for quantities and histogram values) and one boolean numpy mask per
+    cutflow row (row 0 = all events, then after each step, cumulative). Missing values in a
+    step's condition count as failing.
+    """
+    view = ChunkView(plan, chunk)
+    n = len(chunk)
+    current = np.ones(n, dtype=bool)
+    masks = [current]
+    for i, step in enumerate(plan.config.steps):
+        value = view.evaluate(step.require, f"step[{i}] ({step.name!r})")
+        current = current & _event_bool(value, n, plan, step.name)
+        masks.append(current)
+    return view, masks
+
+
+def _event_bool(value: Any, n: int, plan: Plan, step: str) -> np.ndarray:
+    if isinstance(value, (bool, np.bool_)):
+        return np.full(n, bool(value))
+    arr = value if isinstance(value, ak.Array) else ak.Array(np.asarray(value))
+    if arr.ndim != 1 or len(arr) != n:
+        raise ConfigError(
+            f"{plan.config.source}: step {step!r}: the condition must give one true/false per "
+            "event; for a collection use count(...), min(...), max(...)"
+        )
+    filled = ak.fill_none(arr, False)
+    return np.asarray(ak.to_numpy(filled), dtype=bool)
+
+
+# --------------------------------------------------------------------------- histogram values
+
+def hist_entries(view: ChunkView, name: str, mask: np.ndarray
+                 ) -> tuple[list[np.ndarray], np.ndarray]:
+    """Flat value arrays (one per axis) and the event row of every entry of histogram ``name``.
+
+    A value per event gives one entry per selected event, a value per object one entry per
+    object; missing values (``None``, e.g. ``jets[2].pt`` with two jets) give no entry.
+    """
+    spec = view.plan.config.histograms[name]
+    n = len(view)
+    rows_all = np.flatnonzero(mask)
+    values = []
+    for key, axis in zip(("x", "y"), spec.axes, strict=False):
+        v = view.evaluate(axis.value, f"histograms.{name}.{key}")
+        if not isinstance(v, ak.Array):
+            v = ak.Array(np.broadcast_to(np.asarray(v, dtype=np.float64), (n,)).copy())
+        if ak.fields(v):
+            raise ConfigError(
+                f"{view.plan.config.source}: histograms.{name}.{key}.value: "
+                f"{axis.value.text!r} gives objects; histogram a number such as .pt or .mass"
+            )
+        if v.ndim > 2:
+            raise ConfigError(
+                f"{view.plan.config.source}: histograms.{name}.{key}.value: "
+                f"{axis.value.text!r} has more than one value per object"
+            )
+        values.append(v[mask])
+    if len(values) == 2 and (values[0].ndim > 1 or values[1].ndim > 1):
+        values = list(ak.broadcast_arrays(*values))
+    first = values[0]
+    if first.ndim == 2:
+        counts = ak.to_numpy(ak.num(first, axis=1))
+        rows = np.repeat(rows_all, counts)
+        flat = [ak.flatten(v, axis=1) for v in values]
+    else:
+        rows = rows_all
+        flat = values
+    keep = np.ones(len(rows), dtype=bool)
+    out = []
+    for v in flat:
+        none = ak.to_numpy(ak.is_none(v, axis=0))
+        keep &= ~none
+        out.append(np.asarray(ak.to_numpy(ak.fill_none(v, np.nan)), dtype=np.float64))
+    if not keep.all():
+        out = [o[keep] for o in out]
+        rows = rows[keep]
+    return out, rows
