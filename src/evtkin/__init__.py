@@ -20,22 +20,34 @@ _LAZY: dict[str, str] = {
     "lhe_info": "evtkin.io.lhe_header",
     "LHEInfo": "evtkin.io.lhe_header",
     "write_lhe": "evtkin.io.lhe_write",
+    "run": "evtkin.run.pipeline",
+    "compare_results": "evtkin.output.compare_plots",
+    "load_results": "evtkin.output.tables",
 }
 
 __all__ = [
     "ConfigError",
     "EvtkinError",
     "LHEError",
+    "LHEInfo",
     "NtupleError",
     "ResultsError",
     "__version__",
-    *_LAZY,
+    "compare_results",
+    "lhe_info",
+    "load_results",
+    "read_lhe",
+    "run",
+    "write_lhe",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover
     from evtkin.io.lhe import read_lhe
     from evtkin.io.lhe_header import LHEInfo, lhe_info
     from evtkin.io.lhe_write import write_lhe
+    from evtkin.output.compare_plots import compare_results
+    from evtkin.output.tables import load_results
+    from evtkin.run.pipeline import run
 
 
 def __getattr__(name: str) -> Any:
