@@ -15,13 +15,15 @@ from evtkin import __version__
 from evtkin.errors import EvtkinError
 
 # command modules, in the order --help lists them
-COMMANDS: list[str] = []
+COMMANDS: list[str] = ["info", "run", "compare", "toy", "inspect"]
 
 
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="evtkin",
-        description="Turn event files (LHE, ROOT ntuples) into analysis histograms, plots and tables.",
+        description=(
+            "Turn event files (LHE, ROOT ntuples) into analysis histograms, plots and tables."
+        ),
     )
     parser.add_argument("--version", action="version", version=f"evtkin {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
