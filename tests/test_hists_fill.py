@@ -228,3 +228,26 @@ def test_scaled_equals_filling_scaled_weights() -> None:
     s = a.scaled(0.37)
     np.testing.assert_allclose(s.sumw, b.sumw, rtol=1e-12, atol=1e-15)
     np.testing.assert_allclose(s.sumw2, b.sumw2, rtol=1e-12, atol=1e-15)
+
+
+def test_many_variations_unordered_rows_and_mixed_items_vs_numpy() -> None:
+    # 30 variations (row width padded inside the kernel), rows in random order, and items with
+    # and without a row map filled together; reference: numpy.histogram per weight column
+    n, nv = 400, 30
+    w = RNG.normal(1, 1, n)
+    wv = RNG.normal(1, 1, (n, nv))
+    rows = RNG.integers(0, n, 900)  # unordered, repeated rows (objects of events)
+    x_obj = RNG.uniform(-1, 11, rows.size)
+    x_evt = RNG.uniform(-1, 11, n)
+    spec = HistSpec("x", (AxisSpec.regular(6, 0, 10, name="x"),))
+    names = tuple(f"v{k}" for k in range(nv))
+    a_obj, a_evt = HistAccumulator(spec, names), HistAccumulator(spec, names)
+    fill_many([(a_obj, (x_obj,), rows), (a_evt, (x_evt,), None)], weight=w, variations=wv)
+    edges = np.concatenate([[-np.inf], np.linspace(0, 10, 7), [np.inf]])
+    table = np.concatenate([w[:, None], wv], axis=1)
+    for acc, x, r in ((a_obj, x_obj, rows), (a_evt, x_evt, np.arange(n))):
+        for c in range(1 + nv):
+            ref, _ = np.histogram(x, edges, weights=table[r, c])
+            ref2, _ = np.histogram(x, edges, weights=table[r, c] ** 2)
+            np.testing.assert_allclose(acc.sumw[c], ref, rtol=1e-12, atol=1e-12)
+            np.testing.assert_allclose(acc.sumw2[c], ref2, rtol=1e-12, atol=1e-12)

@@ -182,3 +182,29 @@ def test_inverse_variance_combination() -> None:
     comb = combine_files([a, b], weighting="inverse_variance")
     assert comb.sigma_pb == pytest.approx(10.6)
     assert comb.sigma_err_pb == pytest.approx(1 / math.sqrt(1.25))
+
+
+def test_no_declared_cross_section_needs_a_user_value() -> None:
+    # IDWTUP = 3 takes σ from Σ XSECUP (hep-ph/0109068); XSECUP = 0 declares nothing
+    run = _run(3, [(1, 0.0, 0.0)])
+    tot = FileTotals.from_arrays([1, 1, 1, 1], [1.0, 1.0, 1.0, 1.0])
+    with pytest.raises(ValueError, match="cross_section_pb"):
+        combine_files([(run, tot)])
+    res = combine_files([(run, tot)], override_pb=8.0)
+    assert res.sigma_pb == pytest.approx(8.0)
+    assert _weights(res, [1, 1], [1.0, 1.0]).tolist() == pytest.approx([2.0, 2.0])  # hand: 8/4
+    assert res.declared_pb is None
+    assert not any("agrees" in line for line in res.log)
+
+
+def test_combined_record_lists_every_file() -> None:
+    a = (_run(-4, [(1, 2.0, 0.2)]), FileTotals.from_arrays([1, 1], [1.0, 3.0]))
+    b = (_run(-4, [(1, 3.0, 0.3)]), FileTotals.from_arrays([1, 1, 1], [3.0, -1.0, 7.0]))
+    res = combine_files([a, b])
+    files = res.to_dict()["files"]
+    assert [f["n_events"] for f in files] == [2, 3]
+    assert [f["n_negative"] for f in files] == [0, 1]
+    assert [f["sigma_pb"] for f in files] == pytest.approx([2.0, 3.0])  # mean XWGTUP per file
+    # events weighting α = (2/5, 3/5): σ = 0.4·2 + 0.6·3 = 2.6 = pooled mean (1+3+3-1+7)/5
+    assert res.sigma_pb == pytest.approx(2.6)
+    assert res.declared_err_pb == pytest.approx(math.hypot(0.4 * 0.2, 0.6 * 0.3))

@@ -4,17 +4,24 @@ The vocabulary (see ``configs/*.toml`` for complete examples)::
 
     [analysis]            name, description, note, luminosity_fb, step_size
     [classes]             user particle classes: name = [PDG ids] (both signs are taken)
-    [samples.NAME]        files, label, cross_section_pb, luminosity_fb, toy, format
+    [samples.NAME]        files, label, cross_section_pb, luminosity_fb, toy, format,
+                          and for format = "root": input (the branch mapping of
+                          evtkin.io.ntuple_mapping), weights_give, truth_files
     [objects.NAME]        particles, status, min_pt, max_abs_eta, max_abs_rapidity,
-                          from_decay_of, isolation = {against, within_dr}, clustering = {radius}
+                          from_decay_of, isolation = {against, within_dr}, clustering = {radius},
+                          from (an ntuple collection), require (a condition on object fields),
+                          isolation = {against_objects, within_dr}
     [[overlap_removal]]   remove, near, within_dr               (applied in the order written)
-    [missing_pt]          name, particles
+    [missing_pt]          name, particles, from (an ntuple vector)
     [[step]]              name, require                         (an ordered event selection)
     [composites.NAME]     build = "pair" | "leptonic_w" | "ttbar_lepton_jets" + options
     [quantities]          NAME = "expression"   (a number per event or object, or an object)
     [histograms.NAME]     title, x = {value, bins, range | edges, label, unit}, y = {...},
-                          normalise, after, samples
+                          normalise, after, samples, response
     [output]              directory, formats, plot_formats
+    [uncertainties.NAME]  method, group | ids, drop_anticorrelated, of, samples
+                          (bands from variation weights; ``automatic = false`` turns off the
+                          default bands taken from the files' weight groups)
 
 Every error names the config file, the 1-based line of the offending key (TOML parsers do
 not report lines, so :class:`KeyLines` finds them by scanning the text), the dotted key path,
@@ -57,6 +64,7 @@ __all__ = [
     "OverlapSpec",
     "SampleSpec",
     "StepSpec",
+    "UncertaintySpec",
     "load_config",
 ]
 
@@ -269,6 +277,15 @@ class SampleSpec:
     luminosity_fb: float | None = None
     toy: bool = False
     format: str = "lhe"
+    #: ROOT ntuples (``format = "root"``): the branch mapping, an
+    #: :class:`evtkin.io.ntuple_mapping.NtupleMapping` from ``[samples.NAME.input]``
+    input: Any = None
+    #: ROOT ntuples: how the event weights give σ: ``"mean"`` (σ = Σw/N, like IDWTUP ±4) or
+    #: ``"sum"`` (each weight is the event's contribution to σ in pb: σ = Σw)
+    weights_give: str = "mean"
+    #: generator-level (LHE) files with the same events, matched by the ntuple's event number
+    #: (0-based position in the LHE file): the truth level of response matrices
+    truth_files: tuple[Path, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -287,6 +304,13 @@ class ObjectSpec:
     isolation_dr: float | None = None
     isolation_min_pt: float = 0.0
     cluster_radius: float | None = None
+    #: isolation against other defined objects (``against_objects``), e.g. for ntuple input
+    isolation_objects: tuple[str, ...] = ()
+    #: ROOT ntuples: the mapped collection(s) the objects come from (``from = "NAME"`` or a
+    #: list, e.g. ``["electrons", "muons"]``, merged keeping their common fields)
+    source: tuple[str, ...] | None = None
+    #: a condition on each object's fields (``require = "btag == 1 and iso < 0.1"``)
+    require: Expression | None = None
 
 
 @dataclass(frozen=True)
@@ -300,6 +324,8 @@ class OverlapSpec:
 class MissingPtSpec:
     name: str
     pdgids: tuple[int, ...]
+    #: ROOT ntuples: the mapped per-event vector holding the missing pT (``from = "NAME"``)
+    source: str | None = None
 
 
 @dataclass(frozen=True)
@@ -335,6 +361,8 @@ class HistogramSpec:
     normalise: str = "xsec_per_bin"
     after: str | None = None  # histogram events that passed this step (default: all steps)
     samples: tuple[str, ...] | None = None
+    #: fill a truth × reconstructed response matrix (samples with ``truth_files``)
+    response: bool = False
 
 
 @dataclass(frozen=True)
@@ -342,6 +370,21 @@ class OutputSpec:
     directory: Path | None = None
     formats: tuple[str, ...] = OUTPUT_FORMATS
     plot_formats: tuple[str, ...] = ("png", "pdf")
+
+
+@dataclass(frozen=True)
+class UncertaintySpec:
+    """One ``[uncertainties.NAME]`` recipe (resolved against the files by
+    :mod:`evtkin.hists.recipes`). ``lines`` maps a key (``""`` = the table) to its 1-based line."""
+
+    name: str
+    method: str
+    group: str | None = None
+    ids: tuple[str, ...] = ()
+    drop_anticorrelated: bool = False
+    of: tuple[str, ...] = ()
+    samples: tuple[str, ...] | None = None
+    lines: Mapping[str, int | None] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -366,6 +409,10 @@ class AnalysisConfig:
     histograms: dict[str, HistogramSpec]
     output: OutputSpec
     classes: dict[str, tuple[int, ...]] = field(default_factory=dict)
+    #: ``[uncertainties.NAME]`` recipes, in the order written
+    uncertainties: tuple[UncertaintySpec, ...] = ()
+    #: bands from the files' ``<weightgroup combine=...>`` (default: only if no recipe is given)
+    uncertainties_automatic: bool = True
 
     def names(self) -> dict[str, str]:
         """Every name an expression may use → what it is."""
@@ -557,7 +604,7 @@ class _Table:
 
 
 _TOP = ("analysis", "classes", "samples", "objects", "overlap_removal", "missing_pt", "step",
-        "composites", "quantities", "histograms", "output")
+        "composites", "quantities", "histograms", "output", "uncertainties")
 
 
 def _particle_ids(t: _Table, key: str, classes: Mapping[str, tuple[int, ...]],
@@ -644,7 +691,8 @@ def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, Samp
         files = s.strings("files")
         if not files:
             raise s.ctx.error((*s.path, "files"), "expected at least one file")
-        fmt = s.string("format", "lhe", choices=("lhe",))
+        fmt = s.string("format", "lhe", choices=("lhe", "root"))
+        ntuple = _read_ntuple_sample(s, fmt, base)
         out[name] = SampleSpec(
             name=name,
             files=tuple((base / f) if not Path(f).is_absolute() else Path(f) for f in files),
@@ -653,10 +701,49 @@ def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, Samp
             luminosity_fb=s.number("luminosity_fb", lumi, positive=True),
             toy=s.boolean("toy", False),
             format=fmt,
+            **ntuple,
         )
         s.done()
     t.done()
     return out
+
+
+def _read_ntuple_sample(s: _Table, fmt: str, base: Path) -> dict[str, Any]:
+    """The ROOT-ntuple keys of a sample: ``input`` (the branch mapping), ``weights_give``,
+    ``truth_files`` (see :mod:`evtkin.run.ntuple_input`)."""
+    from evtkin.io.ntuple_mapping import NtupleMapping
+
+    if fmt != "root":
+        for key in ("input", "weights_give", "truth_files"):
+            if s.has(key):
+                raise s.ctx.error((*s.path, key), 'only for ROOT ntuples (format = "root")')
+        return {}
+    if not s.has("input"):
+        s._missing("input", ' for format = "root" (the branch mapping: [samples.NAME.input])')
+    raw = s.raw("input")
+    where = _fmt_path((*s.path, "input"))
+    try:
+        mapping = NtupleMapping.from_dict(raw, where=where)
+    except ConfigError as exc:
+        # the mapping names the dotted key first: find its line
+        msg = str(exc)
+        key = msg.split(":", 1)[0]
+        parts: list[str | int] = []
+        for piece in key.split("."):
+            head, _, idx = piece.partition("[")
+            parts.append(head)
+            if idx:
+                parts.append(int(idx.rstrip("]")))
+        line = s.ctx.lines.line(parts) if s.ctx.lines is not None else None
+        at = f"{s.ctx.source}:{line}" if line is not None else s.ctx.source
+        raise ConfigError(f"{at}: {msg}") from None
+    truth = s.strings("truth_files", ())
+    return {
+        "input": mapping,
+        "weights_give": s.string("weights_give", "mean", choices=("mean", "sum")),
+        "truth_files": tuple((base / f) if not Path(f).is_absolute() else Path(f)
+                             for f in truth),
+    }
 
 
 def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[str, ObjectSpec]:
@@ -669,7 +756,13 @@ def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[s
             raise t.ctx.error((*t.path, name), f"{name!r} is a reserved event field name")
         o = t.table(name)
         assert o is not None
-        ids, names = _particle_ids(o, "particles", classes)
+        source = o.strings("from", None)
+        if source is None or o.has("particles"):
+            ids, names = _particle_ids(o, "particles", classes)
+        else:
+            ids, names = (), ()
+        require = o.expression("require") if o.has("require") else None
+        o.known.append("require")
         status_raw = o.raw("status", 1)
         status_list = status_raw if isinstance(status_raw, list) else [status_raw]
         if not status_list or not all(
@@ -681,8 +774,11 @@ def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[s
         iso_dr = None
         iso_pt = 0.0
         iso = o.table("isolation")
+        iso_objs: tuple[str, ...] = ()
         if iso is not None:
-            iso_ids, _ = _particle_ids(iso, "against", classes)
+            iso_objs = iso.strings("against_objects", ())
+            if not iso_objs or iso.has("against"):
+                iso_ids, _ = _particle_ids(iso, "against", classes)
             iso_dr = iso.number("within_dr", positive=True)
             iso_pt = iso.number("min_pt", 0.0, nonnegative=True)
             iso.done()
@@ -705,6 +801,9 @@ def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[s
             isolation_dr=iso_dr,
             isolation_min_pt=iso_pt,
             cluster_radius=radius,
+            source=source,
+            require=require,
+            isolation_objects=iso_objs,
         )
         o.done()
     t.done()
@@ -743,8 +842,9 @@ def _read_missing(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> Missin
         return None
     name = t.string("name", "met")
     ids, _ = _particle_ids(t, "particles", classes, default=["neutrinos"])
+    source = t.string("from", None)
     t.done()
-    return MissingPtSpec(name, ids)
+    return MissingPtSpec(name, ids, source)
 
 
 def _read_steps(top: _Table) -> tuple[StepSpec, ...]:
@@ -877,6 +977,7 @@ def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
             normalise=h.string("normalise", "xsec_per_bin", choices=NORMALISATIONS),
             after=after,
             samples=only,
+            response=h.boolean("response", False),
         )
         h.done()
     t.done()
@@ -902,6 +1003,67 @@ def _read_output(top: _Table, base: Path) -> OutputSpec:
                               suggest=_suggest(f, PLOT_FORMATS))
     t.done()
     return OutputSpec(base / directory if directory else None, tuple(formats), tuple(plots))
+
+
+UNCERTAINTY_METHODS = ("envelope", "replicas_std", "replicas_68", "hessian_symmetric",
+                       "hessian_asymmetric", "quadrature")
+
+
+def _read_uncertainties(top: _Table, samples: Mapping[str, SampleSpec]
+                        ) -> tuple[tuple[UncertaintySpec, ...], bool]:
+    """``[uncertainties]``: ``automatic = bool`` and one sub-table per recipe (see
+    :mod:`evtkin.hists.recipes` for the meaning; names are checked against the files there)."""
+    t = top.table("uncertainties")
+    if t is None:
+        return (), True
+    lines = t.ctx.lines
+    out: list[UncertaintySpec] = []
+    for name in list(t.data):
+        if name == "automatic":
+            continue
+        u = t.table(name)
+        assert u is not None
+        method = u.string("method", choices=UNCERTAINTY_METHODS)
+        at = {k: (lines.line((*u.path, k)) if lines is not None else None)
+              for k in ("", "group", "ids", "of", "method", "samples", "drop_anticorrelated")}
+        group = u.string("group", None)
+        ids_raw = u.raw("ids")
+        ids: tuple[str, ...] = ()
+        if ids_raw is not None:
+            ok = isinstance(ids_raw, list) and all(
+                isinstance(x, (str, int)) and not isinstance(x, bool) for x in ids_raw)
+            if not ok or not ids_raw:
+                raise u.ctx.error((*u.path, "ids"), "expected a list of weight ids (strings or "
+                                  f"whole numbers), got {_kind(ids_raw)}")
+            ids = tuple(str(x) for x in ids_raw)
+        of = u.strings("of", ())
+        if method == "quadrature":
+            if group is not None or ids:
+                raise u.ctx.error((*u.path, "group" if group is not None else "ids"),
+                                  "a quadrature combines other recipes: give of = [...] only")
+            if not of:
+                raise u.ctx.error((*u.path, "of"), "expected the names of the recipes to combine")
+            for i, o in enumerate(of):
+                before = [x.name for x in out if x.method != "quadrature"]
+                _check_name(u.ctx, (*u.path, "of", i), o, before, "recipe declared above")
+        else:
+            if of:
+                raise u.ctx.error((*u.path, "of"), "only method = 'quadrature' takes of = [...]")
+            if (group is None) == (not ids):
+                raise u.ctx.error((*u.path, "group"), "give exactly one of group = \"NAME\" (a "
+                                  "weight group declared in the files) or ids = [...]")
+        drop = u.boolean("drop_anticorrelated", False)
+        if drop and method != "envelope":
+            raise u.ctx.error((*u.path, "drop_anticorrelated"), "only for method = 'envelope'")
+        only = u.strings("samples", None)
+        if only is not None:
+            for i, s in enumerate(only):
+                _check_name(u.ctx, (*u.path, "samples", i), s, samples, "sample")
+        u.done()
+        out.append(UncertaintySpec(name, method, group, ids, drop, tuple(of), only, at))
+    automatic = t.boolean("automatic", not out)
+    t.done()
+    return tuple(out), automatic
 
 
 # --------------------------------------------------------------------------- name checks
@@ -971,6 +1133,58 @@ def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
         visit(qname, [])
 
 
+def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    """Objects, missing pT and response histograms against the samples' formats and mappings."""
+    from evtkin.events import PARTICLE_FIELDS
+    from evtkin.expr import ATTRIBUTES
+
+    for oname, o in cfg.objects.items():
+        for other in o.isolation_objects:
+            _check_name(ctx, ("objects", oname, "isolation", "against_objects"), other,
+                        [n for n in cfg.objects if n != oname], "object collection")
+    for sname, spec in cfg.samples.items():
+        if spec.format != "root":
+            for oname, o in cfg.objects.items():
+                if not o.pdgids:
+                    raise ctx.error(("objects", oname), f"sample {sname!r} is an LHE file: give "
+                                    "particles = [...] (from = ... is for ROOT ntuples)")
+                if o.require is not None:
+                    _check_expression_names(ctx, ("objects", oname, "require"), o.require,
+                                            {n: "field" for n in (*PARTICLE_FIELDS, *ATTRIBUTES)})
+            continue
+        m = spec.input
+        for oname, o in cfg.objects.items():
+            if o.source is None:
+                raise ctx.error(("objects", oname), f"sample {sname!r} is a ROOT ntuple: give "
+                                "from = \"COLLECTION\" (a collection of its input mapping)")
+            for k, src in enumerate(o.source):
+                key: Path_ = ("objects", oname, "from") + ((k,) if len(o.source) > 1 else ())
+                _check_name(ctx, key, src, m.collections, f"collection of samples.{sname}.input")
+            if o.cluster_radius is not None:
+                raise ctx.error(("objects", oname, "clustering"), f"sample {sname!r} is a ROOT "
+                                "ntuple: its collections are already reconstructed objects")
+            if o.require is not None:
+                known = {n: "field" for src in o.source for n in
+                         (*m.collections[src].coords, *m.collections[src].fields, *ATTRIBUTES)}
+                _check_expression_names(ctx, ("objects", oname, "require"), o.require, known)
+        if cfg.missing_pt is not None:
+            if cfg.missing_pt.source is None:
+                raise ctx.error(("missing_pt",), f"sample {sname!r} is a ROOT ntuple: give "
+                                "from = \"VECTOR\" (a vector of its input mapping)")
+            _check_name(ctx, ("missing_pt", "from"), cfg.missing_pt.source, m.vectors,
+                        f"vector of samples.{sname}.input")
+    for hname, h in cfg.histograms.items():
+        if not h.response:
+            continue
+        if len(h.axes) != 1:
+            raise ctx.error(("histograms", hname, "response"), "response matrices are made for "
+                            "1-D histograms only")
+        with_truth = [n for n in (h.samples or cfg.samples) if cfg.samples[n].truth_files]
+        if not with_truth:
+            raise ctx.error(("histograms", hname, "response"), "no sample of this histogram has "
+                            "truth_files (generator-level events to match)")
+
+
 def _check_met(ctx: _Ctx, cfg: AnalysisConfig, path: Path_, name: str) -> None:
     if cfg.missing_pt is None:
         raise ctx.error(path, "needs a [missing_pt] section")
@@ -1034,6 +1248,7 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
     quantities = _read_quantities(top)
     histograms = _read_histograms(top, steps, samples)
     output = _read_output(top, base)
+    uncertainties, automatic = _read_uncertainties(top, samples)
     for k in _TOP:
         top.known.append(k)
     top.done()
@@ -1064,6 +1279,9 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
         histograms=histograms,
         output=output,
         classes=classes,
+        uncertainties=uncertainties,
+        uncertainties_automatic=automatic,
     )
     _check_names(ctx, cfg)
+    _check_ntuple_names(ctx, cfg)
     return cfg

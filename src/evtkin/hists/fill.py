@@ -43,7 +43,6 @@ __all__ = [
     "fill_many",
 ]
 
-_BLOCK = 512  # events per cache block in the fill kernel (512 x 31 x 8 B ~ 127 kB)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -279,40 +278,57 @@ if _HAVE_NUMBA:
                 out[i] = k * mult
 
     @njit(nogil=True, cache=True)
-    def _accumulate_nb(gidx, grows, rowflag, starts, w0, wv, out_w, out_w2, block):  # type: ignore[no-untyped-def]
+    def _accumulate_nb(gidx, grows, rowflag, starts, w0, wv, out):  # type: ignore[no-untyped-def]
+        # ``out`` is bin-major ``(n_bins, 2(1+V))``: [Σw (1+V) | Σw² (1+V)] per bin, one
+        # contiguous row. Event-major loop: the extended row [w, w²] of an event is built once
+        # (squares computed once per event, not once per event and histogram) and stays in L1
+        # while every histogram adds it to the bins of its entries of that event with a
+        # contiguous loop of 2(1+V) additions. Row views (not flat offsets) keep that loop free
+        # of negative-index handling, so it vectorises. Entries of each histogram must be in
+        # non-decreasing row order (the caller sorts them otherwise).
         nh = starts.size - 1
         nv = wv.shape[1]
+        m = nv + 1
         ptr = starts[:-1].copy()
-        nrows = w0.size
-        b0 = 0
-        while True:
-            b1 = b0 + block
-            last = b1 >= nrows
+        m2 = out.shape[1]  # 2(1+V) rounded up to a multiple of 8: no scalar remainder loop
+        src = np.zeros(m2, dtype=np.float64)
+        for r in range(w0.size):
+            wr = wv[r]
+            a = w0[r]
+            src[0] = a
+            src[m] = a * a
+            for c in range(nv):
+                y = wr[c]
+                src[1 + c] = y
+                src[m + 1 + c] = y * y
             for h in range(nh):
                 p = ptr[h]
                 end = starts[h + 1]
-                s0 = starts[h]
-                use_rows = rowflag[h]
-                while p < end:
-                    r = grows[p] if use_rows else p - s0
-                    if not last and r >= b1:
-                        break
-                    k = gidx[p]
-                    ow = out_w[k]
-                    ow2 = out_w2[k]
-                    wr = wv[r]
-                    a = w0[r]
-                    ow[0] += a
-                    ow2[0] += a * a
-                    for c in range(nv):
-                        y = wr[c]
-                        ow[c + 1] += y
-                        ow2[c + 1] += y * y
+                if rowflag[h]:
+                    while p < end and grows[p] == r:
+                        ov = out[gidx[p]]
+                        for c in range(m2):
+                            ov[c] += src[c]
+                        p += 1
+                elif p < end:  # one entry per row
+                    ov = out[gidx[p]]
+                    for c in range(m2):
+                        ov[c] += src[c]
                     p += 1
                 ptr[h] = p
-            if last:
-                break
-            b0 = b1
+
+
+    @njit(nogil=True, cache=True)
+    def _accumulate_nominal_nb(gidx, grows, rowflag, starts, w0, out):  # type: ignore[no-untyped-def]
+        # nominal weight only: histogram-major, two additions per entry
+        for h in range(starts.size - 1):
+            s0 = starts[h]
+            use_rows = rowflag[h]
+            for p in range(s0, starts[h + 1]):
+                a = w0[grows[p] if use_rows else p - s0]
+                ov = out[gidx[p]]
+                ov[0] += a
+                ov[1] += a * a
 
 
 def _write_index(
@@ -336,6 +352,11 @@ def _write_index(
         out[:] = k * mult
 
 
+def _row_width(nv: int) -> int:
+    """Columns of the fill buffer: 2(1+V) rounded up to a multiple of 8 (whole SIMD blocks)."""
+    return 2 if nv == 0 else -(-2 * (1 + nv) // 8) * 8
+
+
 def _accumulate(
     gidx: np.ndarray,
     grows: np.ndarray,
@@ -343,18 +364,23 @@ def _accumulate(
     starts: np.ndarray,
     w0: np.ndarray,
     wv: np.ndarray,
-    out_w: np.ndarray,
-    out_w2: np.ndarray,
+    out: np.ndarray,
 ) -> None:
-    """Add weight rows ``(w0[r], wv[r, :])`` of every entry to bin ``gidx`` of the buffers.
+    """Add weight rows ``(w0[r], wv[r, :])`` and their squares of every entry to bin ``gidx``.
 
+    ``out`` has shape ``(n_bins, W)`` with ``W >= 2 (1 + V)`` (see :func:`_row_width`): Σw in
+    columns ``0..V``, Σw² in ``1+V..2V+1``, padding columns stay zero.
     Entries ``starts[h]:starts[h+1]`` belong to histogram ``h``; their weight row is ``grows[p]``
     if ``rowflag[h]`` else ``p - starts[h]``.
     """
     if _HAVE_NUMBA:
-        _accumulate_nb(gidx, grows, rowflag, starts, w0, wv, out_w, out_w2, _BLOCK)
+        if wv.shape[1] == 0:
+            _accumulate_nominal_nb(gidx, grows, rowflag, starts, w0, out)
+        else:
+            _accumulate_nb(gidx, grows, rowflag, starts, w0, wv, out)
         return
-    nb = out_w.shape[0]  # pragma: no cover - numpy path
+    nb = out.shape[0]  # pragma: no cover - numpy path
+    m = 1 + wv.shape[1]  # pragma: no cover
     rows = np.empty_like(gidx)  # pragma: no cover
     for h in range(starts.size - 1):  # pragma: no cover
         sl = slice(starts[h], starts[h + 1])
@@ -362,8 +388,8 @@ def _accumulate(
     cols = [w0, *(wv[:, c] for c in range(wv.shape[1]))]  # pragma: no cover
     for c, col in enumerate(cols):  # pragma: no cover
         w = col[rows]
-        out_w[:, c] += np.bincount(gidx, weights=w, minlength=nb)
-        out_w2[:, c] += np.bincount(gidx, weights=w * w, minlength=nb)
+        out[:, c] += np.bincount(gidx, weights=w, minlength=nb)
+        out[:, m + c] += np.bincount(gidx, weights=w * w, minlength=nb)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -628,17 +654,21 @@ def fill_many(
         if offset:
             view += offset
         if r is not None:
+            if r.size > 1 and np.any(r[1:] < r[:-1]):  # the kernel wants non-decreasing rows
+                order = np.argsort(r, kind="stable")
+                view[:] = view[order]
+                r = r[order]
             grows[sl] = r
             rowflag[h] = True
         offsets.append(offset)
         offset += acc.spec.size
-    buf_w = np.zeros((offset, 1 + nv), dtype=np.float64)
-    buf_w2 = np.zeros((offset, 1 + nv), dtype=np.float64)
-    _accumulate(gidx, grows, rowflag, starts, w0, wv, buf_w, buf_w2)
+    m = 1 + nv
+    buf = np.zeros((offset, _row_width(nv)), dtype=np.float64)
+    _accumulate(gidx, grows, rowflag, starts, w0, wv, buf)
     for h, (acc, _x, _r) in enumerate(prepared):
         sl = slice(offsets[h], offsets[h] + acc.spec.size)
-        acc._w += buf_w[sl].reshape(acc._w.shape)
-        acc._w2 += buf_w2[sl].reshape(acc._w2.shape)
+        acc._w += buf[sl, :m].reshape(acc._w.shape)
+        acc._w2 += buf[sl, m : 2 * m].reshape(acc._w2.shape)
         acc.entries += sizes[h]
 
 
@@ -673,13 +703,13 @@ def _fill_grouped(
         units_w.append(np.add.reduceat(gw, first, axis=0))
     uidx = np.ascontiguousarray(np.concatenate(units_idx))
     uw = np.concatenate(units_w, axis=0)
-    buf_w = np.zeros((acc.spec.size, 1 + acc.nvar), dtype=np.float64)
-    buf_w2 = np.zeros_like(buf_w)
+    m = 1 + acc.nvar
+    buf = np.zeros((acc.spec.size, _row_width(acc.nvar)), dtype=np.float64)
     _accumulate(
         uidx, np.empty(0, dtype=np.int64), np.zeros(1, dtype=np.bool_),
         np.array([0, uidx.size], dtype=np.int64),
-        np.ascontiguousarray(uw[:, 0]), np.ascontiguousarray(uw[:, 1:]), buf_w, buf_w2,
+        np.ascontiguousarray(uw[:, 0]), np.ascontiguousarray(uw[:, 1:]), buf,
     )
-    acc._w += buf_w.reshape(acc._w.shape)
-    acc._w2 += buf_w2.reshape(acc._w2.shape)
+    acc._w += buf[:, :m].reshape(acc._w.shape)
+    acc._w2 += buf[:, m : 2 * m].reshape(acc._w2.shape)
     acc.entries += idx.size

@@ -153,6 +153,8 @@ class XsecResult:
     log: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     file_factors: list[dict[int, float]] | None = None  # combine_files: one dict per file
+    #: combine_files: per-file record (source, IDWTUP, N, Σ XWGTUP, declared σ, estimate, α_f)
+    files: list[dict[str, Any]] = field(default_factory=list)
 
     def factor(self, process_id: int, file_index: int = 0) -> float:
         table = self.file_factors[file_index] if self.file_factors else self.factors
@@ -191,6 +193,7 @@ class XsecResult:
             "factors": {str(k): v for k, v in self.factors.items()},
             "log": list(self.log),
             "warnings": list(self.warnings),
+            "files": [dict(f) for f in self.files],
         }
 
 
@@ -292,10 +295,13 @@ def normalisation_factors(
     err = _sigma_error(run, totals, factors, conv)
 
     # cross-check against what the file declares
-    declared = run.totxsec_pb if run.totxsec_pb is not None else (
-        run.sum_xsecup if run.processes else None
+    declared = run.totxsec_pb if run.totxsec_pb else (
+        run.sum_xsecup if run.processes and run.sum_xsecup != 0 else None
     )
-    declared_err = run.sum_xerrup if run.processes else None
+    declared_err = run.sum_xerrup if declared is not None and run.processes else None
+    if declared is None:
+        log.append(f"{src}: the file declares no cross section (Σ XSECUP = 0, no "
+                   "<xsecinfo totxsec>): no cross-check possible")
     if declared is not None and override_pb is None:
         tag = "<xsecinfo totxsec>" if run.totxsec_pb is not None else "Σ XSECUP"
         tol = 5.0 * math.hypot(err, declared_err or 0.0) + rel_tolerance * abs(declared)
@@ -349,6 +355,22 @@ def combine_files(
     parts = list(files)
     if not parts:
         raise ValueError("combine_files: no files given")
+    pre_log: list[str] = []
+    undeclared = all(r.sum_xsecup == 0 and not r.totxsec_pb for r, _t in parts)
+    if convention == "standard":
+        uses_xsecup = all(abs(int(r.idwtup)) in (2, 3) for r, _t in parts)
+    else:
+        uses_xsecup = convention == "xsecup"
+    if undeclared and uses_xsecup:
+        srcs = ", ".join(r.source or "file" for r, _t in parts)
+        if override_pb is None:
+            raise ValueError(
+                f"{srcs}: IDWTUP = {parts[0][0].idwtup} takes σ from XSECUP, but no cross "
+                "section is declared (XSECUP = 0, no <xsecinfo totxsec>); give the sample's "
+                "cross_section_pb")
+        convention = "mean"  # shape from XWGTUP / N, scaled to the user's σ below
+        pre_log.append(f"{srcs}: no declared cross section; weights XWGTUP/N scaled to the "
+                       "user's σ")
     per = [
         normalisation_factors(r, t, convention=convention, mode3_norm=mode3_norm)
         for r, t in parts
@@ -359,7 +381,7 @@ def combine_files(
     conv = convs.pop()
     n = np.array([p.n_events for p in per], dtype=np.float64)
     errs = np.array([p.sigma_err_pb for p in per], dtype=np.float64)
-    log = [line for p in per for line in p.log]
+    log = pre_log + [line for p in per for line in p.log]
     warnings = [w for p in per for w in p.warnings]
     if weighting == "inverse_variance" and np.all(errs > 0):
         alpha = (1.0 / errs**2) / np.sum(1.0 / errs**2)
@@ -420,6 +442,19 @@ def combine_files(
         sum_w, sum_w2 = totals_with(file_factors)
         sigma, err = float(override_pb), 0.0
     decl = [p.declared_pb for p in per]
+    decl_err = [p.declared_err_pb for p in per]
+    declared_err = (
+        float(math.sqrt(sum((a * e) ** 2 for a, e in zip(alpha, decl_err, strict=True))))
+        if all(e is not None for e in decl_err) and all(d is not None for d in decl) else None
+    )
+    files_info = [
+        {"source": r.source, "idwtup": int(r.idwtup), "n_processes": len(r.processes),
+         "n_events": t.total_events, "n_negative": t.n_negative,
+         "sum_xwgtup": t.total_sum_w, "sum_xwgtup2": float(sum(t.sum_w2.values())),
+         "sum_xsecup_pb": r.sum_xsecup, "xerrup_pb": r.sum_xerrup, "totxsec_pb": r.totxsec_pb,
+         "sigma_pb": p.sigma_pb, "sigma_err_pb": p.sigma_err_pb, "weight_in_combination": float(a)}
+        for (r, t), p, a in zip(parts, per, alpha, strict=True)
+    ]
     declared = (
         float(sum(a * d for a, d in zip(alpha, decl, strict=True)))
         if all(d is not None for d in decl) else None
@@ -431,6 +466,6 @@ def combine_files(
         factors=file_factors[0] if len(file_factors) == 1 else {},
         sigma_pb=sigma, sigma_err_pb=err, n_events=int(n.sum()), sum_w=sum_w, sum_w2=sum_w2,
         n_eff=neff, mode=modes.pop() if len(modes) == 1 else 0, convention=conv,
-        declared_pb=declared, declared_err_pb=None, log=log, warnings=warnings,
-        file_factors=file_factors,
+        declared_pb=declared, declared_err_pb=declared_err, log=log, warnings=warnings,
+        file_factors=file_factors, files=files_info,
     )

@@ -1,7 +1,10 @@
 """Write a run's results folder (layout in docs/results-format.md) through :mod:`evtkin.output`.
 
 ``results.json`` and ``provenance.json`` are always written (they are the record every other
-command reads); ROOT, CSV, cutflow tables and plots follow ``[output] formats``.
+command reads); ROOT, CSV, cutflow tables and plots follow ``[output] formats``. Uncertainty bands
+(:mod:`evtkin.hists.recipes`) go into every output: ``bands`` in the JSON, ``<band>_down/_up``
+columns in the CSV, ``<sample>__<hist>__<band>_up/_down`` histograms in the ROOT file, shaded on
+the plots. :func:`summary_text` is the per-sample cross-section summary printed after a run.
 """
 
 from __future__ import annotations
@@ -15,11 +18,16 @@ if TYPE_CHECKING:  # pragma: no cover
     from evtkin.run.pipeline import RunResult
     from evtkin.run.plan import Plan
 
-__all__ = ["to_results", "write_outputs"]
+__all__ = ["INCOMPLETE_MARKER", "summary_text", "to_results", "write_outputs"]
+
+#: present in a results folder while a run writes it (removed once provenance.json is written)
+INCOMPLETE_MARKER = "INCOMPLETE"
+_INCOMPLETE_TEXT = ("evtkin is writing this folder, or a run writing it was interrupted: "
+                    "its files may be a mix of two runs. Run again to complete it.\n")
 
 
 def to_results(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> tables.Results:
-    """The plain results record of a run (nominal values, no bands yet)."""
+    """The plain results record of a run (nominal values and uncertainty bands)."""
     samples = {}
     for name, s in result.samples.items():
         samples[name] = tables.SampleResult(
@@ -28,7 +36,8 @@ def to_results(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> t
             luminosity_fb=s.luminosity_fb,
             xsec=s.xsec.to_dict() if s.xsec is not None else {},
             variations=list(s.variations),
-            histograms={h: tables.hist_result(nh) for h, nh in s.histograms.items()},
+            histograms={h: tables.hist_result(nh, getattr(s, "bands", {}).get(h))
+                        for h, nh in s.histograms.items()},
             cutflow=list(s.cutflow) if with_cutflow else [],
         )
     meta: dict[str, Any] = {"analysis": plan.config.name}
@@ -36,6 +45,9 @@ def to_results(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> t
         meta["note"] = plan.config.note
     elif any(s.toy for s in plan.config.samples.values()):
         meta["note"] = "toy data — not a physics prediction"
+    skipped = (result.provenance or {}).get("skipped")
+    if skipped:  # --skip-bad: the units left out, so nothing is silently missing
+        meta["skipped"] = list(skipped)
     return tables.Results(samples=samples, meta=meta)
 
 
@@ -43,6 +55,11 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path) -> Path:
     """Write every requested output of ``result`` into ``folder`` (created if needed)."""
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
+    # every file is written under a temporary name and renamed; while the folder is being
+    # (re)written it holds INCOMPLETE and no provenance.json (written last), so a run that
+    # was interrupted is recognisable
+    marker = tables.atomic_write_text(out / INCOMPLETE_MARKER, _INCOMPLETE_TEXT)
+    (out / "provenance.json").unlink(missing_ok=True)
     formats = set(plan.config.output.formats)
     results = to_results(plan, result, with_cutflow="cutflow" in formats)
     tables.write_results(out, results, csv_tables="csv" in formats)
@@ -56,4 +73,34 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path) -> Path:
         write_plots(out, results, note=str(results.meta.get("note", "")),
                     formats=plan.config.output.plot_formats)
     tables.write_provenance(out, result.provenance)
+    if any(getattr(s, "responses", None) for s in result.samples.values()):
+        from evtkin.hists.response import write_responses
+
+        write_responses(out, result)
+    marker.unlink()
     return out
+
+
+def summary_text(result: RunResult) -> str:
+    """Per sample: events, σ ± error, Σw, Σw², N_eff, the weighting convention used, and any
+    cross-check warnings (one block per sample, plain text)."""
+    lines = []
+    for name, s in result.samples.items():
+        x = s.xsec
+        if x is None:
+            lines.append(f"{name}: {s.n_events} events (no cross section: no events read)")
+            continue
+        sel = s.cutflow[-1]["n_raw"] if s.cutflow else s.n_events
+        lines.append(
+            f"{name}: {x.n_events} events, {sel} selected; σ = {x.sigma_pb:.6g} ± "
+            f"{x.sigma_err_pb:.3g} pb; Σw = {x.sum_w:.6g} pb, Σw² = {x.sum_w2:.4g} pb², "
+            f"N_eff = {x.n_eff:.6g}")
+        mode = f"IDWTUP = {x.mode}" if x.mode else "IDWTUP differs between files"
+        decl = (f"; declared {x.declared_pb:.6g} pb" if x.declared_pb else "; no declared σ")
+        lines.append(f"  weights: {mode}, convention {x.convention!r}{decl}")
+        for w in x.warnings:
+            lines.append(f"  warning: {w}")
+        bands = sorted({b for per in getattr(s, "bands", {}).values() for b in per})
+        if bands:
+            lines.append(f"  bands: {', '.join(bands)}")
+    return "\n".join(lines) + ("\n" if lines else "")

@@ -81,9 +81,12 @@ class FileRecord:
     def __add__(self, other: FileRecord) -> FileRecord:
         if (self.sample, self.index, self.path) != (other.sample, other.index, other.path):
             raise ValueError("cannot merge records of different files")
+        info = self.info if self.info is not None else other.info
+        merge = getattr(self.info, "merged_with", None)  # ntuple units add their bytes read
+        if callable(merge) and other.info is not None:
+            info = merge(other.info)
         return FileRecord(self.sample, self.index, self.path, self.size,
-                          self.sha256 or other.sha256, self.n_events + other.n_events,
-                          self.info if self.info is not None else other.info)
+                          self.sha256 or other.sha256, self.n_events + other.n_events, info)
 
 
 def _merge_dicts(a: dict[Any, Any], b: dict[Any, Any]) -> dict[Any, Any]:

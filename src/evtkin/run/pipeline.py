@@ -27,8 +27,8 @@ from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import NormalisedHist, normalise
 from evtkin.hists.xsec import FileTotals, ProcessDecl, RunDecl, XsecResult, combine_files
-from evtkin.run.executors import Executor, SerialExecutor
-from evtkin.run.partial import PartialResult, merge_all
+from evtkin.run.executors import Executor, execute
+from evtkin.run.partial import PartialResult
 from evtkin.run.plan import Plan, build_plan
 from evtkin.run.units import make_units
 
@@ -50,6 +50,13 @@ class SampleResult:
     weighted: dict[str, HistAccumulator]
     cutflow: list[dict[str, Any]]
     n_events: int
+    #: per histogram: uncertainty bands (name → Band) from the resolved recipes
+    bands: dict[str, dict[str, Any]] = field(default_factory=dict)
+    #: the recipes applied to this sample and notes on how they were resolved
+    recipes: list[Any] = field(default_factory=list)
+    uncertainty_notes: list[str] = field(default_factory=list)
+    #: per histogram marked ``response = true``: evtkin.hists.response.Response
+    responses: dict[str, Any] = field(default_factory=dict)
 
 
 @dataclass
@@ -125,11 +132,16 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
     factor: Callable[[int, int], float]
     if n_events > 0:
         try:
-            xsec = combine_files(
-                [(_run_decl(r.info, r.path), _file_totals(partial, name, r.index))
-                 for r in records],
-                override_pb=spec.cross_section_pb,
-            )
+            if spec.format == "root":  # ntuples: σ from weights_give (evtkin.run.ntuple_input)
+                from evtkin.run.ntuple_input import ntuple_xsec
+
+                xsec = ntuple_xsec(spec, [_file_totals(partial, name, r.index) for r in records])
+            else:
+                xsec = combine_files(
+                    [(_run_decl(r.info, r.path), _file_totals(partial, name, r.index))
+                     for r in records],
+                    override_pb=spec.cross_section_pb,
+                )
         except ValueError as exc:
             raise ConfigError(f"samples.{name}: {exc}") from None
         position = {i: k for k, i in enumerate(files)}
@@ -179,14 +191,23 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
             "eff_step": float(sum_w[k] / prev) if prev else math.nan,
             "eff_cum": float(sum_w[k] / sum_w[0]) if sum_w[0] else math.nan,
         })
+    from evtkin.hists.recipes import bands_for, resolve_recipes
+
+    recipes, notes = resolve_recipes(plan.config, name, variations, [r.info for r in records])
+    bands = {h: bands_for(nh.values, recipes) for h, nh in normalised.items()} if recipes else {}
     return SampleResult(name, spec.label, spec.luminosity_fb, spec.toy, xsec, variations,
-                        normalised, weighted, cutflow, n_events)
+                        normalised, weighted, cutflow, n_events, bands, recipes, notes)
 
 
 def finalise(plan: Plan, partial: PartialResult) -> dict[str, SampleResult]:
     """Normalise a merged partial result, sample by sample."""
-    return {name: _sample_result(plan, spec, partial)
-            for name, spec in plan.config.samples.items()}
+    samples = {name: _sample_result(plan, spec, partial)
+               for name, spec in plan.config.samples.items()}
+    if any(h.response for h in plan.config.histograms.values()):
+        from evtkin.hists.response import finalise_responses
+
+        finalise_responses(plan, partial, samples)
+    return samples
 
 
 # --------------------------------------------------------------------------- provenance
@@ -212,6 +233,9 @@ def _provenance(plan: Plan, partial: PartialResult, samples: Mapping[str, Sample
     for (sample, index), rec in sorted(partial.files.items()):
         inputs.append({"sample": sample, "index": index, "path": rec.path, "size": rec.size,
                        "sha256": rec.sha256, "events": rec.n_events})
+        extra = getattr(rec.info, "provenance", None)  # ntuples: tree, branches, bytes read
+        if callable(extra):
+            inputs[-1].update(extra())
     return {
         "evtkin_version": _versions()["evtkin"],
         "versions": _versions(),
@@ -227,22 +251,14 @@ def _provenance(plan: Plan, partial: PartialResult, samples: Mapping[str, Sample
         "cross_sections": {
             name: (s.xsec.to_dict() if s.xsec is not None else None) for name, s in samples.items()
         },
+        "uncertainties": {
+            name: {"recipes": [r.to_dict() for r in s.recipes], "notes": list(s.uncertainty_notes)}
+            for name, s in samples.items()
+        },
     }
 
 
 # --------------------------------------------------------------------------- entry point
-
-def _progress(enabled: bool | None) -> tuple[Callable[[int], None] | None, Any]:
-    if enabled is None:
-        enabled = sys.stderr.isatty()
-    if not enabled:
-        return None, None
-    from tqdm import tqdm
-
-    bar = tqdm(unit=" events", unit_scale=True, dynamic_ncols=True, desc="evtkin run",
-               file=sys.stderr)
-    return bar.update, bar
-
 
 def run(
     config: str | Path | Mapping[str, Any] | AnalysisConfig,
@@ -252,6 +268,8 @@ def run(
     step_size: int | None = None,
     progress: bool | None = False,
     executor: Executor | None = None,
+    skip_bad: bool = False,
+    unit_bytes: int | None = None,
 ) -> RunResult:
     """Run an analysis and return its normalised histograms (``result[sample][hist]``).
 
@@ -260,22 +278,28 @@ def run(
     folder there (default: the config's ``[output] directory``, else nothing is written).
     ``max_events``: read at most this many events from each input file. ``step_size``:
     events per chunk (results do not depend on it). ``progress``: show a progress bar
-    (``None``: only on a terminal).
+    (``None``: only on a terminal). ``executor``: where the work units run (default: serially
+    here; see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is skipped and listed
+    in the provenance and results (default: the run stops with an error naming its file and
+    range). ``unit_bytes``: target size of byte-range units of plain LHE files (default:
+    automatic from the number of workers).
     """
     started = _dt.datetime.now(_dt.timezone.utc)
     t0 = time.perf_counter()
     cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
     plan = build_plan(cfg, step_size=step_size, max_events=max_events)
-    units = make_units(plan)
-    update, bar = _progress(progress)
-    try:
-        partial = merge_all((executor or SerialExecutor()).run(plan, units, update))
-    finally:
-        if bar is not None:
-            bar.close()
+    make_units(plan)  # missing inputs fail before anything else
+    from evtkin.hists.recipes import check_config_against_files
+
+    check_config_against_files(cfg)  # unknown weight groups/ids fail before reading events
+    execution = execute(plan, executor, skip_bad=skip_bad, progress=progress,
+                        unit_bytes=unit_bytes)
+    partial = execution.partial
     samples = finalise(plan, partial)
     seconds = time.perf_counter() - t0
     provenance = _provenance(plan, partial, samples, started, seconds)
+    provenance["execution"] = execution.record()
+    provenance["skipped"] = list(execution.skipped)
     result = RunResult(samples, provenance, None, dict(partial.seconds))
     target = Path(out) if out is not None else cfg.output.directory
     if target is not None:
