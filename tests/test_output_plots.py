@@ -57,3 +57,26 @@ def test_plot_rejects_different_binning(tmp_path: Path) -> None:
         AxisSpec.regular(10, 70, 110, name="mll"),))), "raw"))
     with pytest.raises(ValueError, match="different binning"):
         plot_hist1d(tmp_path / "x", [("a", h), ("b", other)])
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("m_{jjb} [GeV]", "$m_{jjb}$ [GeV]"),
+        ("p_T^{t,had} [GeV]", "$p_T^{t,had}$ [GeV]"),
+        ("cos θ*", "cos θ*"),  # nothing to render
+        ("top_pt", "top_pt"),  # an identifier, not a subscript
+        ("$m_{ll}$", "$m_{ll}$"),  # already mathtext
+    ],
+)
+def test_display_label_renders_tex_scripts(text: str, expected: str) -> None:
+    from evtkin.output.plots import display_label
+
+    assert display_label(text) == expected
+
+
+def test_display_label_leaves_unparsable_text_alone() -> None:
+    from evtkin.output.plots import display_label
+
+    # an unbalanced mathtext command would make matplotlib fail at draw time
+    assert display_label(r"m_{\frac}") == r"m_{\frac}"

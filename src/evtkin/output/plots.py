@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import io
 import os
+import re
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -18,9 +19,42 @@ import numpy as np
 
 from evtkin.output.tables import HistResult, Results, atomic_write_bytes, safe_name
 
-__all__ = ["plot_hist1d", "plot_hist2d", "write_plots"]
+__all__ = ["display_label", "plot_hist1d", "plot_hist2d", "write_plots"]
 
 FORMATS = ("png", "pdf")
+
+# a word with TeX-style sub/superscripts: m_{jj}, p_T^{t,had}, E_T
+_SCRIPTED = re.compile(r"(?<!\w)[^\W_]+(?:[_^](?:\{[^{}$]*\}|[^\W_]))+(?!\w)")
+
+
+def display_label(text: str) -> str:
+    """Render TeX-style scripts in a label (``m_{jj}`` → ``$m_{jj}$``) for matplotlib.
+
+    Labels that already contain ``$`` are left alone; a word that matplotlib's mathtext
+    cannot parse is shown as typed.
+    """
+    if "$" in text or not _SCRIPTED.search(text):
+        return text
+    from matplotlib.mathtext import MathTextParser
+
+    parser = MathTextParser("path")
+
+    def wrap(m: re.Match[str]) -> str:
+        candidate = f"${m.group(0)}$"
+        try:
+            parser.parse(candidate)
+        except ValueError:
+            return m.group(0)
+        return candidate
+
+    return _SCRIPTED.sub(wrap, text)
+
+
+def _bands_to_draw(h: HistResult, requested: Sequence[str] | None) -> list[str]:
+    """Bands drawn for ``h``: the requested ones, else ``total`` alone when present, else all."""
+    if requested is not None:
+        return [b for b in requested if b in h.bands]
+    return ["total"] if "total" in h.bands else list(h.bands)
 
 
 def _pyplot() -> Any:
@@ -65,9 +99,7 @@ def plot_hist1d(
         colour = f"C{i}"
         vals = h.inner_values()
         errs = np.sqrt(np.clip(h.inner_variances(), 0.0, None))
-        for j, bname in enumerate(band_names if band_names is not None else list(h.bands)):
-            if bname not in h.bands:
-                continue
+        for j, bname in enumerate(_bands_to_draw(h, band_names)):
             b = h.bands[bname]
             ax.fill_between(edges, np.append(b.down[1:-1], b.down[-2]),
                             np.append(b.up[1:-1], b.up[-2]), step="post", color=colour,
@@ -76,8 +108,8 @@ def plot_hist1d(
         ax.stairs(vals, edges, color=colour, linewidth=1.5, label=label)
         ax.errorbar(centres, vals, yerr=errs, fmt="none", ecolor=colour, elinewidth=1.0,
                     capsize=0)
-    ax.set_xlabel(first.axes[0].title, fontsize=12)
-    ax.set_ylabel(first.y_title, fontsize=12)
+    ax.set_xlabel(display_label(first.axes[0].title), fontsize=12)
+    ax.set_ylabel(display_label(first.y_title), fontsize=12)
     ax.set_xlim(edges[0], edges[-1])
     if logy:
         ax.set_yscale("log")
@@ -110,9 +142,9 @@ def plot_hist2d(
     xe, ye = h.axes[0].edges, h.axes[1].edges
     mesh = ax.pcolormesh(xe, ye, h.inner_values().T, cmap="viridis", shading="flat")
     cb = fig.colorbar(mesh, ax=ax)
-    cb.set_label(h.y_title)
-    ax.set_xlabel(h.axes[0].title, fontsize=12)
-    ax.set_ylabel(h.axes[1].title, fontsize=12)
+    cb.set_label(display_label(h.y_title))
+    ax.set_xlabel(display_label(h.axes[0].title), fontsize=12)
+    ax.set_ylabel(display_label(h.axes[1].title), fontsize=12)
     ax.set_title(f"{h.title}" + (f" — {label}" if label else ""), fontsize=12)
     ax.tick_params(direction="in", which="both", top=True, right=True)
     if note:
