@@ -92,6 +92,10 @@ def _build_object(spec: ObjectSpec, particles: Any) -> Any:
         out = obj.select(particles, pdgids=spec.pdgids, status=spec.status, pt_min=spec.min_pt,
                          abs_eta_max=spec.max_abs_eta, abs_rapidity_max=spec.max_abs_rapidity,
                          mask=mask)
+    if spec.require is not None:
+        from evtkin.run.ntuple_input import object_mask
+
+        out = out[object_mask(spec, out, "config")]
     if spec.isolation_against:
         others = obj.select(particles, pdgids=spec.isolation_against, status=1,
                             pt_min=spec.isolation_min_pt or None, sort=False)
@@ -148,8 +152,17 @@ class ChunkView:
         self._cache: dict[str, Any] = {}
         self._busy: set[str] = set()
         cfg = plan.config
+        if "particles" not in ak.fields(chunk):  # a ROOT ntuple: objects from its collections
+            from evtkin.run.ntuple_input import collection_objects
+
+            self._cache.update(collection_objects(cfg, chunk))
+            return
         particles = chunk["particles"]
         objs = {name: _build_object(spec, particles) for name, spec in cfg.objects.items()}
+        if any(o.isolation_objects for o in cfg.objects.values()):
+            from evtkin.run.ntuple_input import isolate_against_objects
+
+            objs = isolate_against_objects(cfg, objs)
         if cfg.overlap_removal:
             objs = obj.apply_overlap_removal(
                 objs, [(o.remove, o.near, o.within_dr) for o in cfg.overlap_removal]

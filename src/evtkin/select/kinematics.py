@@ -76,6 +76,23 @@ def _first(fields: list[str], names: tuple[str, ...]) -> str | None:
     return None
 
 
+def _collider_fields(obj: Array) -> tuple[list[str], str | None]:
+    """``(fields, pt field name)`` when ``obj`` stores collider coordinates ``pt`` (or ``rho``),
+    ``eta``, ``phi`` and no Cartesian ``px, py, pz``; the name is ``None`` otherwise.
+
+    Detector-level collections (ntuples) usually store pT, η and φ: reading them directly avoids
+    converting to Cartesian components and back, which dominated the selection time.
+    """
+    fields = _fields(obj)
+    if "eta" not in fields or "phi" not in fields or "px" in fields or "x" in fields:
+        return fields, None
+    if "pt" in fields:
+        return fields, "pt"
+    if "rho" in fields:
+        return fields, "rho"
+    return fields, None
+
+
 def components(obj: Array) -> tuple[Array, Array, Array, Array]:
     """Return ``(px, py, pz, E)`` of records holding a four-momentum (see the module docstring).
 
@@ -112,6 +129,84 @@ def components(obj: Array) -> tuple[Array, Array, Array, Array]:
     return px, py, pz, e
 
 
+def _np(values: Array) -> np.ndarray:
+    """A flat awkward/numpy column as float64 numpy, missing values as NaN."""
+    if isinstance(values, ak.Array):
+        values = ak.to_numpy(ak.fill_none(values, np.nan))
+    return np.asarray(values, dtype=np.float64)
+
+
+def flat_components(obj: Array) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, np.ndarray,
+                                         np.ndarray]:
+    """``(counts, px, py, pz, E)`` as flat float64 numpy arrays.
+
+    ``obj`` holds one record per event (``counts`` is ``None``; a missing record gives NaN) or
+    a jagged ``[event][object]`` collection (``counts`` per event; a missing list counts as
+    empty). The conversion runs on the flat numpy columns, which is much cheaper than awkward
+    arithmetic on jagged or option-typed arrays.
+    """
+    counts = None
+    flat = obj
+    if isinstance(obj, ak.Array) and obj.ndim == 2:
+        filled = ak.fill_none(obj, [], axis=0) if obj.layout.is_option else obj
+        counts = ak.to_numpy(ak.num(filled, axis=1)).astype(np.int64)
+        flat = ak.flatten(filled, axis=1)
+    fields = _fields(flat)
+    efield = _first(fields, _ENERGY_NAMES)
+    mfield = _first(fields, _MASS_NAMES)
+    if {"px", "py", "pz"} <= set(fields) or {"x", "y", "z"} <= set(fields):
+        names = ("px", "py", "pz") if "px" in fields else ("x", "y", "z")
+        px, py, pz = (_np(flat[n]) for n in names)
+    elif {"pt", "eta", "phi"} <= set(fields) or {"rho", "eta", "phi"} <= set(fields):
+        ptv = _np(flat["pt"] if "pt" in fields else flat["rho"])
+        ph, et = _np(flat["phi"]), _np(flat["eta"])
+        px, py, pz = ptv * np.cos(ph), ptv * np.sin(ph), ptv * np.sinh(et)
+    else:
+        raise TypeError(
+            "expected records with px, py, pz (or pt, eta, phi) and an energy or mass field; "
+            f"got fields {fields}"
+        )
+    if efield is not None:
+        e = _np(flat[efield])
+    elif mfield is not None:
+        m = _np(flat[mfield])
+        e = np.sqrt(np.maximum(px * px + py * py + pz * pz + m * np.abs(m), 0.0))
+    else:
+        raise TypeError(
+            f"expected an energy field {_ENERGY_NAMES} or a mass field {_MASS_NAMES}; "
+            f"got fields {fields}"
+        )
+    return counts, px, py, pz, e
+
+
+def _numpy_path(obj: Array, compute: Any) -> Array | None:
+    """Evaluate ``compute(px, py, pz, E)`` on flat numpy columns and give the result the shape
+    of ``obj`` (one record per event, None kept; or a jagged collection of plain records).
+    ``None`` when ``obj`` has another layout (the awkward path then handles it)."""
+    if not isinstance(obj, ak.Array) or not _fields(obj):
+        return None
+    layout = obj.layout
+    inner = layout.content if obj.ndim == 2 and layout.is_list else layout
+    if inner.is_option and obj.ndim == 1:
+        inner = inner.content
+    while inner.is_indexed:
+        inner = inner.content
+    if not inner.is_record or any(inner.content(f).is_option for f in inner.fields):
+        return None  # missing values inside the records: the awkward path keeps them as None
+    if obj.ndim == 1:
+        _, px, py, pz, e = flat_components(obj)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = ak.Array(compute(px, py, pz, e))
+        if layout.is_option:
+            out = ak.mask(out, ~ak.to_numpy(ak.is_none(obj, axis=0)))
+        return out
+    if obj.ndim == 2 and layout.is_list and not layout.content.is_option:
+        counts, px, py, pz, e = flat_components(obj)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return ak.unflatten(compute(px, py, pz, e), counts)
+    return None
+
+
 def transverse_components(obj: Array) -> tuple[Array, Array]:
     """``(px, py)`` of records that may be two-dimensional (e.g. missing pT)."""
     fields = _fields(obj)
@@ -134,13 +229,27 @@ def make_p4(px: Array, py: Array, pz: Array, e: Array, **extra: Array) -> ak.Arr
 
 
 def pt(obj: Array) -> Array:
-    """Transverse momentum √(px² + py²)."""
+    """Transverse momentum √(px² + py²) (the stored ``pt`` field when there is one)."""
+    fields = _fields(obj)
+    if "pt" in fields and "px" not in fields:
+        return obj["pt"]
+    if "pz" in fields or "z" in fields:
+        fast = _numpy_path(obj, lambda x, y, z, e: np.sqrt(x * x + y * y))
+        if fast is not None:
+            return fast
     px, py = transverse_components(obj)
     return np.sqrt(px * px + py * py)
 
 
 def phi(obj: Array) -> Array:
-    """Azimuth atan2(py, px) in (-π, π]."""
+    """Azimuth atan2(py, px) in (-π, π] (the stored ``phi`` field when there is one)."""
+    fields = _fields(obj)
+    if "phi" in fields and "px" not in fields and "x" not in fields:
+        return obj["phi"]
+    if "pz" in fields or "z" in fields:
+        fast = _numpy_path(obj, lambda x, y, z, e: np.arctan2(y, x))
+        if fast is not None:
+            return fast
     px, py = transverse_components(obj)
     return np.arctan2(py, px)
 
@@ -157,14 +266,33 @@ def energy(obj: Array) -> Array:
 
 
 def eta(obj: Array) -> Array:
-    """Pseudorapidity asinh(pz/pT) (±inf along the beam)."""
+    """Pseudorapidity asinh(pz/pT) (±inf along the beam; the stored ``eta`` field of records in
+    collider coordinates)."""
+    _, ptname = _collider_fields(obj)
+    if ptname is not None:
+        return obj["eta"]
+    fast = _numpy_path(obj, lambda x, y, z, e: np.arcsinh(z / np.sqrt(x * x + y * y)))
+    if fast is not None:
+        return fast
     px, py, pz, _ = components(obj)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.arcsinh(pz / np.sqrt(px * px + py * py))
 
 
 def rapidity(obj: Array) -> Array:
-    """Rapidity ½ ln((E + pz)/(E − pz)) (±inf when E = |pz|)."""
+    """Rapidity ½ ln((E + pz)/(E − pz)) (±inf when E = |pz|).
+
+    Records in collider coordinates with a mass field and no energy field use the equivalent
+    y = asinh(pT sinh η / m_T), m_T = √(pT² + m²) (E = m_T cosh y, pz = m_T sinh y)."""
+    fields, ptname = _collider_fields(obj)
+    mfield = _first(fields, _MASS_NAMES)
+    if ptname is not None and mfield is not None and _first(fields, _ENERGY_NAMES) is None:
+        ptv, m = obj[ptname], obj[mfield]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.arcsinh(ptv * np.sinh(obj["eta"]) / np.sqrt(ptv * ptv + m * np.abs(m)))
+    fast = _numpy_path(obj, lambda x, y, z, e: 0.5 * np.log((e + z) / (e - z)))
+    if fast is not None:
+        return fast
     _, _, pz, e = components(obj)
     with np.errstate(divide="ignore", invalid="ignore"):
         return 0.5 * np.log((e + pz) / (e - pz))
@@ -172,12 +300,28 @@ def rapidity(obj: Array) -> Array:
 
 def mass2(obj: Array) -> Array:
     """Invariant mass squared E² − |p|²."""
+    fast = _numpy_path(obj, lambda x, y, z, e: e * e - (x * x + y * y + z * z))
+    if fast is not None:
+        return fast
     px, py, pz, e = components(obj)
     return e * e - (px * px + py * py + pz * pz)
 
 
 def mass(obj: Array) -> Array:
-    """Invariant mass; a negative mass² gives a negative mass (signed square root)."""
+    """Invariant mass; a negative mass² gives a negative mass (signed square root). Records in
+    collider coordinates with a mass field and no energy field return that field."""
+    fields, ptname = _collider_fields(obj)
+    mfield = _first(fields, _MASS_NAMES)
+    if ptname is not None and mfield is not None and _first(fields, _ENERGY_NAMES) is None:
+        return obj[mfield]
+
+    def signed(x: Array, y: Array, z: Array, e: Array) -> Array:
+        m2 = e * e - (x * x + y * y + z * z)
+        return np.sign(m2) * np.sqrt(np.abs(m2))
+
+    fast = _numpy_path(obj, signed)
+    if fast is not None:
+        return fast
     m2 = mass2(obj)
     return np.sign(m2) * np.sqrt(np.abs(m2))
 
