@@ -18,15 +18,22 @@ run() {  # run CONFIG NAME: skipped with a note when its samples are not there y
         fi
     done
     echo "== $name: evtkin run $config"
-    "$PY" -m evtkin.cli run "$config" --out "$OUT/$name"
+    "$PY" -m evtkin run "$config" --out "$OUT/$name"
 }
 
 run configs/ttbar_lepton_jets.toml ttbar_lepton_jets \
     samples/toy_ttbar.lhe.gz samples/toy_ttbar_deformed.lhe.gz
 run configs/drell_yan.toml drell_yan samples/toy_drellyan.lhe.gz
+run configs/ttbar_reco.toml ttbar_reco samples/toy_ttbar_reco.root
+
+# The standard against the deformed top-pair sample: ratios, pulls, χ² tests, HTML report.
+if [ -f "$OUT/ttbar_lepton_jets/results.json" ]; then
+    echo "== comparison: evtkin compare $OUT/ttbar_lepton_jets (ttbar vs ttbar_deformed)"
+    "$PY" -m evtkin compare "$OUT/ttbar_lepton_jets" --pulls --out "$OUT/compare_ttbar"
+fi
 
 echo
-echo "Outputs:"
+echo "Outputs (toy data, not a physics prediction):"
 for d in "$OUT"/*/; do
     [ -f "$d/results.json" ] || continue
     echo "  $d"
@@ -34,4 +41,12 @@ for d in "$OUT"/*/; do
     for c in "$d"/cutflow/*.txt; do
         [ -f "$c" ] && sed 's/^/    /' "$c"
     done
+done
+if [ -f "$OUT/compare_ttbar/summary.txt" ]; then
+    echo
+    echo "  $OUT/compare_ttbar/ (sorted by p-value, smallest first)"
+    sed 's/^/    /' "$OUT/compare_ttbar/summary.txt"
+fi
+for r in "$OUT"/*/report.html; do
+    [ -f "$r" ] && echo "HTML report: $(cd "$(dirname "$r")" && pwd)/report.html"
 done
