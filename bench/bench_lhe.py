@@ -66,11 +66,21 @@ def run(mode: str, path: str, threads: int = 1, env: dict | None = None) -> dict
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
-def best(mode: str, path: str, threads: int, repeat: int) -> dict:
-    runs = [run(mode, path, threads) for _ in range(repeat)]
-    r = min(runs, key=lambda x: x["seconds"])
-    r["rss_mb"] = max(x["rss_mb"] for x in runs)
-    return r
+def interleaved(cases: list[tuple[str, str, str, int]], repeat: int) -> dict[str, dict]:
+    """Run every case once per round, ``repeat`` rounds (A/B/C, A/B/C, ...): on a machine
+    shared with other work the load drifts, and interleaving spreads the drift over all
+    cases. Per case: the fastest run, and the largest peak RSS."""
+    runs: dict[str, list[dict]] = {label: [] for label, *_ in cases}
+    for _ in range(repeat):
+        for label, mode, path, threads in cases:
+            runs[label].append(run(mode, path, threads))
+    out = {}
+    for label, rs in runs.items():
+        r = dict(min(rs, key=lambda x: x["seconds"]))
+        r["rss_mb"] = max(x["rss_mb"] for x in rs)
+        r["all"] = [x["seconds"] for x in rs]
+        out[label] = r
+    return out
 
 
 def timed_startup(tiny: str, env: dict | None = None) -> float:
@@ -93,30 +103,33 @@ def main() -> None:
     print(f"file {path}: {size_mb:.0f} MB uncompressed; machine: {os.cpu_count()} cores (shared)")
     subprocess.run(["cat", path], stdout=subprocess.DEVNULL, check=True)  # warm the page cache
 
-    bare = best("bare", path, 1, args.repeat)
-    base = size_mb / bare["seconds"]
-    rows = [("bare line scan (baseline)", bare, 1.0)]
-    for label, mode, p, th in (
+    cases = [
+        ("bare line scan (baseline)", "bare", path, 1),
         ("read_lhe plain, 1 parse thread", "read", path, 1),
         ("read_lhe plain, 2 parse threads", "read", path, 2),
-    ):
-        r = best(mode, p, th, args.repeat)
-        rows.append((label, r, (size_mb / r["seconds"]) / base))
+    ]
     if Path(gz).exists():
         subprocess.run(["cat", gz], stdout=subprocess.DEVNULL, check=True)
-        r = best("decompress", gz, 1, args.repeat)
-        rows.append(("raw gzip decompression (isal)", r, (size_mb / r["seconds"]) / base))
-        for th in (1, 2):
-            r = best("read", gz, th, args.repeat)
-            rows.append(
-                (f"read_lhe gzip, {th} parse thread(s)", r, (size_mb / r["seconds"]) / base)
-            )
-    print(f"{'what':40s} {'s':>7s} {'MB/s':>7s} {'x bare':>7s} {'peak RSS MB':>12s} {'events':>9s}")
-    for label, r, ratio in rows:
+        cases += [
+            ("raw gzip decompression (isal)", "decompress", gz, 1),
+            ("read_lhe gzip, 1 parse thread", "read", gz, 1),
+            ("read_lhe gzip, 2 parse threads", "read", gz, 2),
+        ]
+    print(f"load average before: {os.getloadavg()}")
+    res = interleaved(cases, args.repeat)
+    base = size_mb / res[cases[0][0]]["seconds"]
+    print(
+        f"{'what':34s} {'s':>6s} {'MB/s':>6s} {'x bare':>7s} {'peak RSS MB':>12s} "
+        f"{'events':>8s}  all runs (s)"
+    )
+    for label, r in res.items():
+        mbs = size_mb / r["seconds"]
+        runs_s = " ".join(f"{x:.2f}" for x in r["all"])
         print(
-            f"{label:40s} {r['seconds']:7.2f} {size_mb / r['seconds']:7.0f} {ratio:7.2f} "
-            f"{r['rss_mb']:12.0f} {r['n']:9d}"
+            f"{label:34s} {r['seconds']:6.2f} {mbs:6.0f} {mbs / base:7.2f} "
+            f"{r['rss_mb']:12.0f} {r['n']:8d}  {runs_s}"
         )
+    print(f"load average after: {os.getloadavg()}")
 
     with tempfile.TemporaryDirectory() as tmp:
         tiny = os.path.join(tmp, "tiny.lhe")

@@ -118,3 +118,30 @@ def test_duplicate_weight_ids_are_an_error(tmp_path):
     head = "<header><initrwgt><weight id='a'/><weight id='a'/></initrwgt></header>\n"
     with pytest.raises(evtkin.LHEError, match="declared more than once: a"):
         evtkin.lhe_info(write(tmp_path, minimal_file("", head=head)))
+
+
+def test_xml_entities_in_weight_declarations_are_unescaped(tmp_path):
+    # XML 1.0 (W3C, sec. 4.6): &lt; &gt; &amp; &quot; &apos; and character references
+    # stand for < > & " ' and the referenced character
+    head = (
+        "<header>\n<initrwgt>\n"
+        "<weightgroup name='mu &amp; pdf' combine='envelope'>\n"
+        "<weight id='a&amp;b'> dyn_scale &lt; 3 &amp;&amp; muR=&quot;2&quot; "
+        "&#955;&#x3bb; </weight>\n"
+        "<weight id='c'> it&apos;s &gt; 1 </weight>\n"
+        "</weightgroup>\n</initrwgt>\n</header>\n"
+    )
+    body = (
+        "<event>\n 1 1 1.0 91.0 0.0078125 0.118\n"
+        " 11 1 0 0 0 0 1.0 2.0 3.0 3.7416573867739413 0.0 0.0 9.0\n"
+        "<rwgt>\n<wgt id='a&amp;b'> 0.5 </wgt>\n<wgt id='c'> 2.0 </wgt>\n</rwgt>\n</event>\n"
+    )
+    path = write(tmp_path, minimal_file(body, head=head))
+    info = evtkin.lhe_info(path)
+    assert info.weight_names == ("a&b", "c")
+    assert info.weight_groups == {"mu & pdf": ("a&b", "c")}
+    assert info.weight_descriptions["a&b"] == 'dyn_scale < 3 && muR="2" λλ'
+    assert info.weight_descriptions["c"] == "it's > 1"
+    # the events' <wgt id='a&amp;b'> still maps to the unescaped id's column
+    chunk = next(iter(evtkin.read_lhe(path)))
+    assert chunk.weights.to_list() == [[0.5, 2.0]]

@@ -38,8 +38,13 @@ def _events(n: int = 7, k: int = 3, seed: int = 4) -> ak.Array:
             "mother2": np.where(local > 1, mother, -1).astype(np.int32),
             "color1": rng.choice([0, 501, 502], tot).astype(np.int32),
             "color2": rng.choice([0, 503], tot).astype(np.int32),
-            "px": floats[:, 0], "py": floats[:, 1], "pz": floats[:, 2], "energy": floats[:, 3],
-            "mass": floats[:, 4], "lifetime": floats[:, 5], "spin": floats[:, 6],
+            "px": floats[:, 0],
+            "py": floats[:, 1],
+            "pz": floats[:, 2],
+            "energy": floats[:, 3],
+            "mass": floats[:, 4],
+            "lifetime": floats[:, 5],
+            "spin": floats[:, 6],
         }
     )
     return ak.zip(

@@ -2,10 +2,10 @@
 
 Pipeline (one run of :func:`read_lhe`)::
 
-    reader thread          parse workers (1-2)          caller's thread
-    read/decompress  --->  byte scanner (nogil)  --->  cut exact step_size chunks,
-    8 MB buffers cut       -> flat numpy columns        zero-copy awkward layouts
-    after </event>
+    reader thread            parse workers (1-2, nogil)      caller's thread
+    read/decompress  ---->   byte scanner -> per-buffer  --> copy into the chunk's
+    reused 8 MB buffers      columns (reused)                preallocated columns,
+    cut after </event>                                       zero-copy awkward layout
 
 The scanner is the compiled kernel of :mod:`evtkin.io.lhe_scan`, or the numpy/Python
 one of :mod:`evtkin.io.lhe_fallback` when numba is unavailable or ``EVTKIN_NO_NUMBA=1``
@@ -13,19 +13,28 @@ is set; both fill the same columns. Each chunk is an awkward Array with one reco
 event (see DEVELOPERS.md "LHE chunk"): ``process_id`` (IDPRUP), ``weight`` (XWGTUP),
 ``scale`` (SCALUP), ``alpha_qed`` (AQEDUP), ``alpha_qcd`` (AQCDUP), ``weights``
 (regular ``n x k``; columns in the order of ``lhe_info(path).weight_names``; NaN where
-an event lacks a declared weight) and ``particles`` (jagged ``Particle`` records, see
-:mod:`evtkin.events`; ``mother1``/``mother2`` 0-based, -1 = none).
+an event lacks a declared weight), ``particles`` (jagged ``Particle`` records, see
+:mod:`evtkin.events`; ``mother1``/``mother2`` 0-based, -1 = none) and, for files with
+``<eventgroup>`` blocks (LHEF 2.0), ``group``: int64 index of the first event of the
+event's group (an event outside any group: its own index).
+
+Memory: the parse workers write into buffer-sized columns that are reused; the caller's
+thread copies them into one chunk's columns, allocated once per chunk (with room for the
+particles estimated from the events read so far, grown if needed). Peak memory is
+therefore about the interpreter + libraries + a few 8 MB buffers + two chunks (the one
+being filled and the one the caller holds), independent of the file size.
 """
 
 from __future__ import annotations
 
 import os
 import queue
+import re
 import threading
 import warnings
+from collections import deque
 from collections.abc import Callable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
-from dataclasses import dataclass
 from typing import Any, BinaryIO
 
 import awkward as ak
@@ -34,18 +43,23 @@ import numpy as np
 from evtkin import events as _events
 from evtkin.errors import LHEError
 from evtkin.io import lhe_scan as c
-from evtkin.io.lhe_header import open_lhe
-from evtkin.io.lhe_scan import ST_FULL, ST_INCOMPLETE, fix_slow_values
-from evtkin.io.sources import Source, compressed_size, open_binary, source_name
+from evtkin.io.lhe_header import lhe_info, open_lhe, xml_escape
+from evtkin.io.sources import (
+    Source,
+    compressed_size,
+    detect_compression,
+    open_binary,
+    source_name,
+)
 
 __all__ = ["LHEWarning", "read_lhe", "scanner_kind"]
 
 BUFFER_BYTES = 8 << 20  # measured sweet spot (PERFORMANCE-NOTES)
 _CLOSE = b"</event>"
+_GROUP_OPEN = b"<eventgroup"
+_GROUP_CLOSE = b"</eventgroup>"
 
 _EVENT_FIELDS = ("process_id", "weight", "scale", "alpha_qed", "alpha_qcd")
-_PI_FIELDS = _events.PARTICLE_FIELDS[:6]
-_PF_FIELDS = _events.PARTICLE_FIELDS[6:]
 
 
 class LHEWarning(UserWarning):
@@ -62,8 +76,9 @@ def _kernel() -> tuple[Callable[..., Any], str]:
     """The scan kernel in use: compiled if possible, else the fallback."""
     global _KERNEL, _KIND
     if _KERNEL is None:
-        if c.scan_kernel is not None and os.environ.get("EVTKIN_NO_NUMBA", "") in ("", "0"):
-            _KERNEL, _KIND = c.scan_kernel, "numba"
+        compiled = c.compiled_kernel()
+        if compiled is not None:
+            _KERNEL, _KIND = compiled, "numba"
         else:
             from evtkin.io.lhe_fallback import scan_kernel_py
 
@@ -78,80 +93,7 @@ def scanner_kind() -> str:
     return _kernel()[1]
 
 
-# ------------------------------------------------------------------ pieces
-
-
-@dataclass
-class _Piece:
-    """Columns of consecutive events parsed from one buffer (owned copies)."""
-
-    pid: np.ndarray  # int32 (n,)
-    evf: np.ndarray  # float64 (4, n)
-    offsets: np.ndarray  # int64 (n + 1,), starting at 0
-    pi: np.ndarray  # int32 (6, np)
-    pf: np.ndarray  # float64 (7, np)
-    wts: np.ndarray  # float64 (n, k)
-
-    @property
-    def n(self) -> int:
-        return int(self.pid.shape[0])
-
-    def slice(self, a: int, b: int) -> _Piece:
-        o0, o1 = int(self.offsets[a]), int(self.offsets[b])
-        return _Piece(
-            self.pid[a:b],
-            self.evf[:, a:b],
-            self.offsets[a : b + 1] - o0,
-            self.pi[:, o0:o1],
-            self.pf[:, o0:o1],
-            self.wts[a:b],
-        )
-
-
-def _concat(pieces: list[_Piece]) -> _Piece:
-    if len(pieces) == 1:
-        return pieces[0]
-    shifts = np.cumsum([0] + [int(p.offsets[-1]) for p in pieces[:-1]])
-    offsets = np.concatenate(
-        [pieces[0].offsets[:1]] + [p.offsets[1:] + s for p, s in zip(pieces, shifts, strict=True)]
-    )
-    return _Piece(
-        np.concatenate([p.pid for p in pieces]),
-        np.concatenate([p.evf for p in pieces], axis=1),
-        offsets,
-        np.concatenate([p.pi for p in pieces], axis=1),
-        np.concatenate([p.pf for p in pieces], axis=1),
-        np.concatenate([p.wts for p in pieces], axis=0),
-    )
-
-
-def _to_awkward(p: _Piece) -> ak.Array:
-    """Zero-copy awkward layout over the piece's columns."""
-    n = p.n
-    contents = ak.contents
-    pi = np.ascontiguousarray(p.pi)
-    pf = np.ascontiguousarray(p.pf)
-    fields = [contents.NumpyArray(pi[j]) for j in range(6)]
-    fields += [contents.NumpyArray(pf[j]) for j in range(7)]
-    particles = contents.ListOffsetArray(
-        ak.index.Index64(np.ascontiguousarray(p.offsets)),
-        contents.RecordArray(
-            fields, list(_events.PARTICLE_FIELDS), parameters={"__record__": "Particle"}
-        ),
-    )
-    evf = np.ascontiguousarray(p.evf)
-    k = p.wts.shape[1]
-    weights = contents.RegularArray(
-        contents.NumpyArray(np.ascontiguousarray(p.wts).reshape(-1)), k, zeros_length=n
-    )
-    layout = contents.RecordArray(
-        [contents.NumpyArray(np.ascontiguousarray(p.pid))]
-        + [contents.NumpyArray(evf[j]) for j in range(4)]
-        + [weights, particles],
-        [*_EVENT_FIELDS, "weights", "particles"],
-        length=n,
-    )
-    return ak.Array(layout)
+# ------------------------------------------------------------------ errors
 
 
 class _ScanFailure(Exception):
@@ -171,141 +113,293 @@ def _token_at(buf: np.ndarray, pos: int) -> str:
     return bytes(buf[pos:end]).decode("utf-8", "replace")
 
 
-# ------------------------------------------------------------------ one worker's scanner
+def _message(
+    status: int, buf: np.ndarray, epos: int, a: int, b: int, ids: tuple[str, ...]
+) -> tuple[int, str]:
+    """(error position, message) for a kernel error status."""
+    if status == c.ERR_LINE:
+        status, epos, a, b = c.diagnose_line(buf, epos, b)
+    if status == c.ERR_FIELD_COUNT:
+        if b == 6:
+            return epos, (
+                "expected 6 numbers on the event line (NUP IDPRUP XWGTUP SCALUP AQEDUP "
+                f"AQCDUP), found {a}"
+            )
+        return epos, (
+            "expected 13 numbers on a particle line (IDUP ISTUP MOTHUP1 MOTHUP2 ICOLUP1 "
+            f"ICOLUP2 PX PY PZ E M VTIMUP SPINUP), found {a}"
+        )
+    if status == c.ERR_NUMBER:
+        return epos, f"expected a number, found {_token_at(buf, epos)!r}"
+    if status == c.ERR_INTEGER:
+        return epos, f"expected an integer, found {_token_at(buf, epos)!r}"
+    if status == c.ERR_NEGATIVE_NUP:
+        return epos, f"NUP must not be negative, found {_token_at(buf, epos)!r}"
+    if status == c.ERR_FEW_PARTICLES:
+        return epos, (
+            f"NUP disagrees with the particle lines: the event declares NUP={a} "
+            f"but has {b} particle lines"
+        )
+    if status == c.ERR_MANY_PARTICLES:
+        return epos, (
+            f"NUP disagrees with the particle lines: a numeric line follows the "
+            f"NUP={a} particle lines of this event"
+        )
+    if status == c.ERR_UNKNOWN_WEIGHT:
+        wid = bytes(buf[a:b]).decode("utf-8", "replace") if 0 <= a <= b else "?"
+        declared = ", ".join(ids[:8]) + (", ..." if len(ids) > 8 else "")
+        return epos, (
+            f"<wgt id={wid!r}> is not declared in the file's <initrwgt> "
+            f"(declared: {declared or 'none'})"
+        )
+    if status == c.ERR_WEIGHT_COUNT:
+        return epos, f"<weights> holds {a} values but the file declares {b} weights"
+    if status == c.ERR_WGT_VALUE:
+        return epos, f"<wgt> must hold exactly one number, found {a}"
+    return epos, c.ERR_MESSAGES.get(status, f"malformed event (code {status})")
 
 
-class _Scanner:
-    """Reusable output arrays for one parse thread, sized for one buffer."""
+# ------------------------------------------------------------------ one buffer's columns
+
+
+class _Scratch:
+    """Reusable columns for the events of one buffer (one parse at a time)."""
 
     def __init__(self, nw: int, ids: tuple[str, ...]) -> None:
         self.nw = nw
         self.ids = ids
-        enc = [i.encode("utf-8") for i in ids]
+        # ids as they appear in the events' <wgt id='...'> attributes (XML-escaped)
+        enc = [xml_escape(i).encode("utf-8") for i in ids]
         self.wid_bytes = np.frombuffer(b"".join(enc) or b"\0", dtype=np.uint8).copy()
         self.wid_off = np.zeros(len(enc) + 1, dtype=np.int64)
         self.wid_off[1:] = np.cumsum([len(e) for e in enc]) if enc else []
-        self.out = np.zeros(16, dtype=np.int64)
-        self.tok_f = np.zeros(16, dtype=np.float64)
-        self.tok_i = np.zeros((5, 16), dtype=np.int64)
-        self._alloc(1 << 14, 1 << 17, 1 << 12)
+        self.st = np.zeros(c.ST_SIZE, dtype=np.int64)
+        self.slow = np.empty((1 << 12, 4), np.int64)
+        self._alloc_events(1 << 13)
+        self._alloc_particles(1 << 17)
+        # results of the last parse
+        self.n_ev = 0
+        self.n_p = 0
+        self.status = c.ST_OK
+        self.resume = 0
+        self.saw_end = False
+        self.stopped = False
 
-    def _alloc(self, ev_cap: int, p_cap: int, s_cap: int) -> None:
-        self.ev_pid = np.empty(ev_cap, np.int32)
-        self.ev_f = np.empty((4, ev_cap), np.float64)
-        self.ev_pos = np.empty(ev_cap, np.int64)
-        self.offsets = np.empty(ev_cap + 1, np.int64)
-        self.p_i = np.empty((6, p_cap), np.int32)
-        self.p_f = np.empty((7, p_cap), np.float64)
-        self.wts = np.empty((ev_cap, self.nw), np.float64)
-        self.slow = np.empty((s_cap, 4), np.int64)
+    def _alloc_events(self, cap: int, keep: int = 0) -> None:
+        old = getattr(self, "ev_pid", None)
+        pid = np.empty(cap, np.int32)
+        evf = np.empty((4, cap), np.float64)
+        offsets = np.empty(cap + 1, np.int64)
+        group = np.empty(cap, np.int64)
+        wts = np.empty((cap, self.nw), np.float64)
+        offsets[0] = 0
+        if old is not None and keep:
+            pid[:keep] = self.ev_pid[:keep]
+            evf[:, :keep] = self.ev_f[:, :keep]
+            offsets[: keep + 1] = self.offsets[: keep + 1]
+            group[:keep] = self.group[:keep]
+            wts[:keep] = self.wts[:keep]
+        self.ev_pid, self.ev_f, self.offsets, self.group, self.wts = pid, evf, offsets, group, wts
 
-    def parse(self, buf: np.ndarray, base: int) -> tuple[list[_Piece], int, int, bool]:
-        """Parse whole events of ``buf``; returns (pieces, status, resume, saw_end_tag).
+    def _alloc_particles(self, cap: int, keep: int = 0) -> None:
+        old = getattr(self, "p_i", None)
+        p_i = np.empty((6, cap), np.int32)
+        p_f = np.empty((7, cap), np.float64)
+        if old is not None and keep:
+            p_i[:, :keep] = self.p_i[:, :keep]
+            p_f[:, :keep] = self.p_f[:, :keep]
+        self.p_i, self.p_f = p_i, p_f
 
-        ``base`` is the absolute stream offset of ``buf[0]`` (for error positions).
+    def _fix_slow(self, buf: np.ndarray, base: int, count: int) -> None:
+        if count:
+            bad = c.fix_slow_values(
+                buf, self.slow[:count], self.ev_f, self.p_f, self.wts.reshape(-1)
+            )
+            if bad >= 0:
+                tok = _token_at(buf, bad)
+                raise _ScanFailure(base + bad, f"expected a number, found {tok!r}")
+
+    def parse(self, kernel: Callable[..., Any], buf: np.ndarray, base: int, stop: int) -> None:
+        """Parse the whole events of ``buf`` (``base``: its absolute stream offset).
+
+        Events (groups) whose tag starts at absolute offset >= ``stop`` are not read.
+        Raises :class:`_ScanFailure` for malformed input.
         """
-        kernel, _ = _kernel()
-        pieces: list[_Piece] = []
-        pos = 0
+        st = self.st
+        st[:] = 0
+        st[c.ST_STOP] = min(max(stop - base, 0), 1 << 62)
         saw_end = False
-        out = self.out
         while True:
             kernel(
-                buf, pos, self.wid_bytes, self.wid_off, self.nw, self.ev_pid, self.ev_f,
-                self.ev_pos, self.offsets, self.p_i, self.p_f, self.wts, self.slow,
-                self.tok_f, self.tok_i, out,
+                buf, self.wid_bytes, self.wid_off, self.ev_pid, self.ev_f, self.offsets,
+                self.group, self.p_i, self.p_f, self.wts, self.slow, st,
             )  # fmt: skip
-            n_ev, n_p, n_slow, status = int(out[0]), int(out[1]), int(out[2]), int(out[3])
-            saw_end = saw_end or bool(out[6])
+            status = int(st[c.ST_STATUS])
+            saw_end = saw_end or bool(st[c.ST_SAWEND])
             if status >= 10:
-                epos = int(out[4])
-                raise _ScanFailure(base + epos, self._message(status, buf, epos, out))
-            if n_ev:
-                if n_slow:
-                    bad = fix_slow_values(
-                        buf, self.slow[:n_slow], self.ev_f, self.p_f, self.wts.reshape(-1)
-                    )
-                    if bad >= 0:
-                        tok = _token_at(buf, bad)
-                        raise _ScanFailure(base + bad, f"expected a number, found {tok!r}")
-                pieces.append(
-                    _Piece(
-                        self.ev_pid[:n_ev].copy(),
-                        self.ev_f[:, :n_ev].copy(),
-                        self.offsets[: n_ev + 1].copy(),
-                        self.p_i[:, :n_p].copy(),
-                        self.p_f[:, :n_p].copy(),
-                        self.wts[:n_ev].copy(),
-                    )
-                )
-            if status == ST_FULL:
-                if n_ev == 0:  # a single event larger than the arrays: grow them
-                    self._alloc(
-                        2 * self.ev_pid.shape[0], 2 * self.p_i.shape[1], 2 * self.slow.shape[0]
-                    )
-                pos = int(out[5])
-                continue
-            return pieces, status, int(out[5]), saw_end
+                epos, msg = _message(
+                    status, buf, int(st[c.ST_ERRPOS]), int(st[c.ST_A]), int(st[c.ST_B]),
+                    self.ids,
+                )  # fmt: skip
+                # slow tokens before the error may hide an earlier malformed number
+                self._fix_slow(buf, base, min(int(st[c.ST_NSLOW]), self.slow.shape[0]))
+                raise _ScanFailure(base + epos, msg)
+            if status != c.ST_FULL:
+                break
+            which = int(st[c.ST_A])
+            n_ev, n_p, n_slow = int(st[c.ST_EV]), int(st[c.ST_NP]), int(st[c.ST_NSLOW])
+            if which == c.FULL_SLOW:
+                if n_slow:  # convert what is there and start a new list
+                    self._fix_slow(buf, base, n_slow)
+                    st[c.ST_NSLOW] = 0
+                else:
+                    self.slow = np.empty((2 * self.slow.shape[0], 4), np.int64)
+            elif which == c.FULL_EVENTS:
+                self._alloc_events(2 * self.ev_pid.shape[0], keep=n_ev)
+            else:
+                self._alloc_particles(2 * self.p_i.shape[1], keep=n_p)
+        self._fix_slow(buf, base, int(st[c.ST_NSLOW]))
+        self.n_ev = int(st[c.ST_EV])
+        self.n_p = int(st[c.ST_NP])
+        self.status = status
+        self.resume = int(st[c.ST_POS])
+        self.saw_end = saw_end
+        self.stopped = bool(st[c.ST_STOPPED])
 
-    def _message(self, status: int, buf: np.ndarray, epos: int, out: np.ndarray) -> str:
-        if status == c.ERR_FIELD_COUNT:
-            if int(out[9]) == 6:
-                return (
-                    f"expected 6 numbers on the event line (NUP IDPRUP XWGTUP SCALUP AQEDUP "
-                    f"AQCDUP), found {int(out[8])}"
-                )
-            return (
-                "expected 13 numbers on a particle line (IDUP ISTUP MOTHUP1 MOTHUP2 ICOLUP1 "
-                f"ICOLUP2 PX PY PZ E M VTIMUP SPINUP), found {int(out[8])}"
-            )
-        if status == c.ERR_NUMBER:
-            return f"expected a number, found {_token_at(buf, epos)!r}"
-        if status == c.ERR_INTEGER:
-            return f"expected an integer, found {_token_at(buf, epos)!r}"
-        if status == c.ERR_NEGATIVE_NUP:
-            return f"NUP must not be negative, found {_token_at(buf, epos)!r}"
-        if status == c.ERR_FEW_PARTICLES:
-            return (
-                f"NUP disagrees with the particle lines: the event declares NUP={int(out[8])} "
-                f"but has {int(out[9])} particle lines"
-            )
-        if status == c.ERR_MANY_PARTICLES:
-            return (
-                f"NUP disagrees with the particle lines: a numeric line follows the "
-                f"NUP={int(out[8])} particle lines of this event"
-            )
-        if status == c.ERR_UNKNOWN_WEIGHT:
-            s, e = int(out[8]), int(out[9])
-            wid = bytes(buf[s:e]).decode("utf-8", "replace") if 0 <= s <= e else "?"
-            declared = ", ".join(self.ids[:8]) + (", ..." if len(self.ids) > 8 else "")
-            return (
-                f"<wgt id={wid!r}> is not declared in the file's <initrwgt> "
-                f"(declared: {declared or 'none'})"
-            )
-        if status == c.ERR_WEIGHT_COUNT:
-            return (
-                f"<weights> holds {int(out[8])} values but the file declares {int(out[9])} weights"
-            )
-        if status == c.ERR_WGT_VALUE:
-            return f"<wgt> must hold exactly one number, found {int(out[8])}"
-        return c.ERR_MESSAGES.get(status, f"malformed event (code {status})")
+
+# ------------------------------------------------------------------ one chunk's columns
+
+
+class _Chunk:
+    """The columns of one output chunk, filled by copying from scratch columns."""
+
+    def __init__(self, cap: int, p_cap: int, nw: int, groups: bool) -> None:
+        self.n = 0
+        self.np = 0
+        self.nw = nw
+        self.groups = groups
+        self.pid = np.empty(cap, np.int32)
+        self.evf = np.empty((4, cap), np.float64)
+        self.offsets = np.empty(cap + 1, np.int64)
+        self.offsets[0] = 0
+        self.group = np.empty(cap if groups else 0, np.int64)
+        self.wts = np.empty((cap, nw), np.float64)
+        self.p_i = np.empty((6, p_cap), np.int32)
+        self.p_f = np.empty((7, p_cap), np.float64)
+
+    def _grow_events(self, need: int) -> None:
+        cap = max(need, 2 * self.pid.shape[0])
+        n = self.n
+        pid, evf, off = np.empty(cap, np.int32), np.empty((4, cap)), np.empty(cap + 1, np.int64)
+        grp, wts = np.empty(cap if self.groups else 0, np.int64), np.empty((cap, self.nw))
+        pid[:n], evf[:, :n], off[: n + 1], wts[:n] = (
+            self.pid[:n],
+            self.evf[:, :n],
+            self.offsets[: n + 1],
+            self.wts[:n],
+        )
+        if self.groups:
+            grp[:n] = self.group[:n]
+        self.pid, self.evf, self.offsets, self.group, self.wts = pid, evf, off, grp, wts
+
+    def _grow_particles(self, need: int) -> None:
+        cap = max(need, 2 * self.p_i.shape[1])
+        p_i, p_f = np.empty((6, cap), np.int32), np.empty((7, cap))
+        p_i[:, : self.np] = self.p_i[:, : self.np]
+        p_f[:, : self.np] = self.p_f[:, : self.np]
+        self.p_i, self.p_f = p_i, p_f
+
+    def add(self, s: _Scratch, a: int, b: int, first_index: int) -> None:
+        """Append scratch events ``[a, b)``; ``first_index``: global index of scratch row 0."""
+        m = b - a
+        n, np0 = self.n, self.np
+        pa, pb = int(s.offsets[a]), int(s.offsets[b])
+        k = pb - pa
+        if n + m > self.pid.shape[0]:
+            self._grow_events(n + m)
+        if np0 + k > self.p_i.shape[1]:
+            self._grow_particles(np0 + k)
+        self.pid[n : n + m] = s.ev_pid[a:b]
+        self.evf[:, n : n + m] = s.ev_f[:, a:b]
+        self.wts[n : n + m] = s.wts[a:b]
+        np.add(s.offsets[a + 1 : b + 1], np0 - pa, out=self.offsets[n + 1 : n + m + 1])
+        if self.groups:
+            np.add(s.group[a:b], first_index, out=self.group[n : n + m])
+        self.p_i[:, np0 : np0 + k] = s.p_i[:, pa:pb]
+        self.p_f[:, np0 : np0 + k] = s.p_f[:, pa:pb]
+        self.n += m
+        self.np += k
+
+    def to_awkward(self) -> ak.Array:
+        """Zero-copy awkward layout over the filled part of the columns."""
+        n, np_ = self.n, self.np
+        contents = ak.contents
+        fields = [contents.NumpyArray(self.p_i[j, :np_]) for j in range(6)]
+        fields += [contents.NumpyArray(self.p_f[j, :np_]) for j in range(7)]
+        particles = contents.ListOffsetArray(
+            ak.index.Index64(self.offsets[: n + 1]),
+            contents.RecordArray(
+                fields, list(_events.PARTICLE_FIELDS), parameters={"__record__": "Particle"}
+            ),
+        )
+        weights = contents.RegularArray(
+            contents.NumpyArray(self.wts[:n].reshape(-1)), self.nw, zeros_length=n
+        )
+        columns = [contents.NumpyArray(self.pid[:n])]
+        columns += [contents.NumpyArray(self.evf[j, :n]) for j in range(4)]
+        columns += [weights, particles]
+        names = [*_EVENT_FIELDS, "weights", "particles"]
+        if self.groups:
+            columns.append(contents.NumpyArray(self.group[:n]))
+            names.append("group")
+        return ak.Array(contents.RecordArray(columns, names, length=n))
 
 
 # ------------------------------------------------------------------ reader thread
 
 
-class _Reader:
-    """Reads the event part of the stream into buffers cut just after ``</event>``.
+def _cut(buf: bytearray, fill: int, groups: bool) -> int:
+    """End of the last whole event (group) in ``buf[:fill]``, or -1 if there is none."""
+    e = buf.rfind(_CLOSE, 0, fill)
+    if e < 0:
+        return -1
+    end = e + len(_CLOSE)
+    if groups:
+        go = buf.rfind(_GROUP_OPEN, 0, fill)
+        gc = buf.rfind(_GROUP_CLOSE, 0, fill)
+        if go > gc:  # a group is still open at the end: cut before it
+            end = go if go > 0 else -1
+        elif gc >= 0 and gc + len(_GROUP_CLOSE) > end:
+            end = gc + len(_GROUP_CLOSE)
+    return end
 
-    Runs in its own thread; ``get()`` returns ``(base, array, final)`` in file order or
-    raises the reader's exception.
+
+class _Reader:
+    """Reads the event part of the stream into reused buffers cut after whole events.
+
+    Runs in its own thread; ``get()`` returns ``(base, array, final, eof, raw)`` in file
+    order (``base``: absolute offset of ``array[0]`` in the decompressed stream; ``raw``:
+    the buffer to hand back with ``recycle``) or raises the reader's exception.
     """
 
-    def __init__(self, stream: BinaryIO, first: bytes, name: str, nbuf: int) -> None:
+    def __init__(
+        self,
+        stream: BinaryIO,
+        first: bytes,
+        base: int,
+        stop: int | None,
+        groups: bool,
+        name: str,
+        nbuf: int,
+    ) -> None:
         self.stream = stream
         self.first = first
+        self.base = base
+        self.stop_at = stop
+        self.groups = groups
         self.name = name
         self.q: queue.Queue[Any] = queue.Queue(maxsize=nbuf)
+        self.free: queue.SimpleQueue[bytearray] = queue.SimpleQueue()
         self.stop = threading.Event()
         self.thread = threading.Thread(target=self._run, name="evtkin-lhe-reader", daemon=True)
         self.thread.start()
@@ -326,19 +420,28 @@ class _Reader:
             fill += got
         return fill
 
+    def _buffer(self, size: int) -> bytearray:
+        try:
+            buf = self.free.get_nowait()
+            if len(buf) == size:
+                return buf
+        except queue.Empty:
+            pass
+        return bytearray(size)
+
     def _run(self) -> None:
         try:
             carry = self.first
-            base = 0
+            base = self.base
             size = max(BUFFER_BYTES, 2 * len(carry))
             while not self.stop.is_set():
-                buf = bytearray(size)
+                buf = self._buffer(size)
                 buf[: len(carry)] = carry
                 mv = memoryview(buf)
                 fill = self._fill(mv, len(carry))
                 eof = fill < size
-                cut = buf.rfind(_CLOSE, 0, fill)
-                while cut < 0 and not eof:
+                end = _cut(buf, fill, self.groups)
+                while end < 0 and not eof:
                     # no complete event yet: grow the buffer
                     size *= 2
                     bigger = bytearray(size)
@@ -347,13 +450,16 @@ class _Reader:
                     mv = memoryview(buf)
                     fill = self._fill(mv, fill)
                     eof = fill < size
-                    cut = buf.rfind(_CLOSE, 0, fill)
-                end = fill if eof or cut < 0 else cut + len(_CLOSE)
+                    end = _cut(buf, fill, self.groups)
+                if eof or end < 0:
+                    end = fill
                 carry = bytes(buf[end:fill])
+                del mv
                 arr = np.frombuffer(buf, dtype=np.uint8, count=end)
-                self._put((base, arr, eof))
+                final = eof or (self.stop_at is not None and base + end >= self.stop_at)
+                self._put((base, arr, final, eof, buf))
                 base += end
-                if eof:
+                if final:
                     break
         except BaseException as exc:  # handed to the consumer
             self._put(exc)
@@ -366,11 +472,14 @@ class _Reader:
             except queue.Full:
                 continue
 
-    def get(self) -> tuple[int, np.ndarray, bool]:
+    def get(self) -> tuple[int, np.ndarray, bool, bool, bytearray]:
         item = self.q.get()
         if isinstance(item, BaseException):
             raise item
         return item  # type: ignore[no-any-return]
+
+    def recycle(self, buf: bytearray) -> None:
+        self.free.put(buf)
 
     def close(self) -> None:
         self.stop.set()
@@ -378,17 +487,86 @@ class _Reader:
         self.stream.close()
 
 
+# ------------------------------------------------------------------ byte ranges
+
+_EVENT_TAG = re.compile(rb"<event(?:group)?[ \t\r\n>]")
+_WINDOW = 1 << 20
+
+
+def _find(fh: BinaryIO, pattern: re.Pattern[bytes], pos: int, limit: int) -> int:
+    """Absolute offset of the first match of ``pattern`` at >= ``pos`` (< ``limit``), or -1."""
+    overlap = 16
+    while pos < limit:
+        fh.seek(pos)
+        block = fh.read(min(_WINDOW, limit - pos + overlap))
+        if not block:
+            return -1
+        m = pattern.search(block)
+        if m is not None:
+            return pos + m.start()
+        if len(block) <= overlap:
+            return -1
+        pos += len(block) - overlap
+    return -1
+
+
+def _in_comment(fh: BinaryIO, pos: int, lo: int) -> int:
+    """If ``pos`` lies inside an XML comment (opened within 1 MB before it): the offset
+    just after the comment's end, else -1."""
+    a = max(lo, pos - _WINDOW)
+    fh.seek(a)
+    before = fh.read(pos - a)
+    o, e = before.rfind(b"<!--"), before.rfind(b"-->")
+    if o < 0 or o < e:
+        return -1
+    end = _find(fh, re.compile(re.escape(b"-->")), pos, 1 << 62)
+    return end + 3 if end >= 0 else 1 << 62
+
+
+def _sync(path: Source, start: int, stop: int, events_offset: int, groups: bool) -> int:
+    """Offset of the first event (or group) tag at or after ``start``; ``stop`` if none.
+
+    Event tags inside a group opened before ``start`` belong to an earlier range; tags
+    inside XML comments are not events.
+    """
+    with open(path, "rb") as fh:
+        pos = start
+        while pos < stop:
+            cand = _find(fh, _EVENT_TAG, pos, stop)
+            if cand < 0 or cand >= stop:
+                return stop
+            after = _in_comment(fh, cand, events_offset)
+            if after >= 0:
+                pos = after
+                continue
+            fh.seek(cand)
+            is_group = fh.read(11) == _GROUP_OPEN
+            if groups and not is_group:
+                close = _find(fh, re.compile(re.escape(_GROUP_CLOSE)), cand, 1 << 62)
+                if close >= 0:
+                    opened = _find(fh, re.compile(re.escape(_GROUP_OPEN)), cand, close)
+                    if opened < 0:  # inside a group that started before ``start``
+                        pos = close + len(_GROUP_CLOSE)
+                        continue
+            return cand
+    return stop
+
+
+def _file_has_groups(head: bytes) -> bool:
+    """Whether the event section (its first bytes) uses ``<eventgroup>`` blocks."""
+    return _GROUP_OPEN in head
+
+
 # ------------------------------------------------------------------ public API
 
 
-def _line_at(source: Source, pos: int, events_offset: int) -> int:
-    """1-based line number of decompressed byte ``events_offset + pos`` of ``source``."""
-    target = events_offset + pos
+def _line_at(source: Source, pos: int) -> int:
+    """1-based line number of absolute decompressed byte ``pos`` of ``source``."""
     lines = 1
     done = 0
     with open_binary(source) as fh:
-        while done < target:
-            block = fh.read(min(1 << 22, target - done))
+        while done < pos:
+            block = fh.read(min(1 << 22, pos - done))
             if not block:
                 break
             lines += block.count(b"\n")
@@ -420,13 +598,21 @@ def read_lhe(
     step_size: int = 100_000,
     strict: bool = True,
     threads: int | None = None,
+    byte_range: tuple[int, int] | None = None,
 ) -> Iterator[ak.Array]:
     """Stream the events of an LHE file as awkward Arrays of ``step_size`` events.
 
-    Every chunk holds exactly ``step_size`` events except the last. ``source`` is a path
-    to a plain, gzip (multi-member too), zstd, bz2 or xz file (detected by magic bytes).
-    ``threads`` is the number of parse threads (default: 2 on a machine with >= 2 cores;
-    a separate thread always reads and decompresses).
+    Every chunk holds exactly ``step_size`` events except the last; in a file with
+    ``<eventgroup>`` blocks a group is never split, so a chunk may hold more events to
+    finish one (and the chunks carry a ``group`` field, see the module docstring).
+    ``source`` is a path to a plain, gzip (multi-member too), zstd, bz2 or xz file
+    (detected by magic bytes). ``threads`` is the number of parse threads (default: 2
+    on a machine with >= 2 cores; a separate thread always reads and decompresses).
+
+    ``byte_range=(start, stop)`` (plain files only) reads exactly the events whose
+    ``<event`` tag (or enclosing ``<eventgroup`` tag) starts at a byte offset in
+    ``[start, stop)``; the offsets need no alignment, so ranges that tile the file read
+    every event once. There, ``group`` counts from the first event of the range.
 
     Raises :class:`~evtkin.errors.LHEError` naming the file and 1-based line for
     malformed input. A file cut short (inside an event, or before
@@ -436,77 +622,152 @@ def read_lhe(
     """
     if int(step_size) < 1:
         raise ValueError(f"step_size must be >= 1, got {step_size}")
-    return _iterate(source, int(step_size), strict, threads or _default_threads())
+    if byte_range is not None:
+        start, stop = (int(x) for x in byte_range)
+        if start < 0 or stop < start:
+            raise ValueError(
+                f"byte_range must be (start, stop) with 0 <= start <= stop, got {byte_range}"
+            )
+        kind = detect_compression(source)
+        if kind is not None:
+            raise LHEError(
+                f"{source_name(source)}: byte_range needs an uncompressed file, this one is "
+                f"{kind}-compressed"
+            )
+        byte_range = (start, stop)
+    return _iterate(source, int(step_size), strict, threads or _default_threads(), byte_range)
 
 
-def _iterate(source: Source, step: int, strict: bool, threads: int) -> Iterator[ak.Array]:
+def _open_events(
+    source: Source, byte_range: tuple[int, int] | None
+) -> tuple[BinaryIO, bytes, int, int | None, Any, bool]:
+    """(stream, first bytes, absolute offset of those bytes, stop, info, has groups)."""
+    if byte_range is None:
+        stream, first, info = open_lhe(source)
+        return stream, first, info.events_offset, None, info, _file_has_groups(first)
+    info = lhe_info(source)
+    size = compressed_size(source)
+    with open(source, "rb") as fh:
+        fh.seek(info.events_offset)
+        head = fh.read(BUFFER_BYTES)
+    groups = _file_has_groups(head)
+    start = max(byte_range[0], info.events_offset)
+    stop = min(byte_range[1], size)
+    begin = _sync(source, start, stop, info.events_offset, groups) if start < stop else stop
+    stream = open(source, "rb")  # noqa: SIM115 - closed by the reader
+    stream.seek(begin)
+    return stream, b"", begin, stop, info, groups
+
+
+def _iterate(
+    source: Source,
+    step: int,
+    strict: bool,
+    threads: int,
+    byte_range: tuple[int, int] | None,
+) -> Iterator[ak.Array]:
     name = source_name(source)
     compressed_size(source)
-    stream, first, info = open_lhe(source)
+    kernel, _ = _kernel()
+    stream, first, begin, stop, info, groups = _open_events(source, byte_range)
     names = info.weight_names
     if not names:
-        k = _sniff_weight_count(first[: 1 << 20])
+        head = first[: 1 << 20]
+        if byte_range is not None:
+            with open(source, "rb") as fh:
+                fh.seek(info.events_offset)
+                head = fh.read(1 << 20)
+        k = _sniff_weight_count(head)
         names = tuple(str(i) for i in range(k))
     nw = len(names)
-    reader = _Reader(stream, first, name, nbuf=threads + 1)
-    local = threading.local()
+    stop_abs = stop if stop is not None else 1 << 62
+    # a range that ends before the end of the file need not see </LesHouchesEvents>
+    need_end = stop is None or stop >= compressed_size(source)
+    if stop is not None and begin >= stop:
+        stream.close()
+        return
+    reader = _Reader(stream, first, begin, stop, groups, name, nbuf=1)
+    free: list[_Scratch] = []
 
-    def work(item: tuple[int, np.ndarray, bool]) -> tuple[list[_Piece], int, int, bool]:
-        scanner = getattr(local, "scanner", None)
-        if scanner is None:
-            scanner = local.scanner = _Scanner(nw, names)
-        base, arr, _final = item
-        return scanner.parse(arr, base)
+    def work(s: _Scratch, base: int, arr: np.ndarray) -> _Scratch:
+        s.parse(kernel, arr, base, stop_abs)
+        return s
+
+    def scratch() -> _Scratch:
+        return free.pop() if free else _Scratch(nw, names)
 
     pool = ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-lhe-parse")
-    pending: list[tuple[tuple[int, np.ndarray, bool], Future[Any]]] = []
-    held: list[_Piece] = []
-    held_n = 0
-    total = 0
+    pending: deque[tuple[tuple[int, np.ndarray, bool, bool, bytearray], Future[_Scratch]]]
+    pending = deque()
+    chunk: _Chunk | None = None
+    per_event = 16.0  # particles per event (upper estimate), refined while reading
+    ratio = 0.0  # the largest particles-per-event ratio of a buffer so far
+    total = 0  # events yielded
+    n_seen = 0  # events parsed so far (global index of the next scratch's row 0)
     saw_end = False
+    stopped = False
+    eof = False
     try:
         reader_done = False
         carry: tuple[int, np.ndarray] | None = None
         while True:
             while not reader_done and len(pending) < threads + 1:
                 item = reader.get()
-                pending.append((item, pool.submit(work, item)))
+                pending.append((item, pool.submit(work, scratch(), item[0], item[1])))
                 reader_done = item[2]
             if not pending:
                 break
-            item, fut = pending.pop(0)
+            item, fut = pending.popleft()
+            base, arr, final, item_eof, raw = item
             try:
                 if carry is not None:
-                    # the previous buffer ended inside an event: reparse joined
-                    fut.cancel()
+                    # the previous buffer ended inside an event: parse joined
+                    s = fut.result()
                     cbase, carr = carry
-                    joined = np.concatenate([carr, item[1]])
-                    item = (cbase, joined, item[2])
+                    arr = np.concatenate([carr, arr])
+                    base = cbase
                     carry = None
-                    pieces, status, resume, end_tag = _Scanner(nw, names).parse(joined, cbase)
+                    s.parse(kernel, arr, base, stop_abs)
                 else:
-                    pieces, status, resume, end_tag = fut.result()
+                    s = fut.result()
             except _ScanFailure as exc:
-                line = _line_at(source, exc.pos, info.events_offset)
-                raise LHEError(f"{name}: line {line}: {exc.message}") from None
-            saw_end = saw_end or end_tag
-            for p in pieces:
-                held.append(p)
-                held_n += p.n
-            while held_n >= step:
-                chunk, held, held_n = _take(held, held_n, step)
-                total += step
-                yield _to_awkward(chunk)
-            final = item[2]
-            if status == ST_INCOMPLETE:
-                base, arr = item[0], item[1]
+                raise LHEError(f"{name}: line {_line_at(source, exc.pos)}: {exc.message}") from None
+            saw_end = saw_end or s.saw_end
+            stopped = stopped or s.stopped
+            eof = eof or item_eof
+            # hand the events to chunks of exactly ``step`` (groups kept whole)
+            a = 0
+            if s.n_ev:
+                ratio = max(ratio, s.n_p / s.n_ev)
+                per_event = 1.15 * ratio
+            while a < s.n_ev:
+                if chunk is None:
+                    chunk = _Chunk(step, int(step * per_event) + 64, nw, groups)
+                b = min(a + step - chunk.n, s.n_ev)
+                if groups and b < s.n_ev:
+                    # never split a group: extend to the next group start
+                    g = s.group[b : s.n_ev]
+                    starts = np.flatnonzero(g == np.arange(b, s.n_ev))
+                    b = b + int(starts[0]) if starts.size else s.n_ev
+                chunk.add(s, a, b, n_seen)
+                a = b
+                if chunk.n >= step:
+                    out = chunk.to_awkward()
+                    total += chunk.n
+                    chunk = None
+                    yield out
+            n_seen += s.n_ev
+            status, resume = s.status, s.resume
+            free.append(s)
+            if status == c.ST_INCOMPLETE:
                 if not final:
                     carry = (base + resume, arr[resume:].copy())
+                    reader.recycle(raw)
                     continue
                 tail = bytes(arr[resume:])
-                n_before = total + held_n
+                n_before = n_seen
                 if b"<event" in tail:
-                    line = _line_at(source, base + resume, info.events_offset)
+                    line = _line_at(source, base + resume)
                     msg = (
                         f"{name}: line {line}: the file is cut short inside an event that "
                         f"starts here; {n_before} complete events precede it"
@@ -516,19 +777,19 @@ def _iterate(source: Source, step: int, strict: bool, threads: int) -> Iterator[
                         f"{name}: the file ends inside a tag after {n_before} complete events "
                         "(cut short?)"
                     )
-                _problem(msg, strict, held, held_n)
+                _problem(msg, strict)
                 saw_end = True  # reported already
-        if not saw_end:
+            reader.recycle(raw)
+        if not saw_end and not stopped and eof and need_end:
             _problem(
                 f"{name}: the file ends without </LesHouchesEvents> after "
-                f"{total + held_n} complete events (cut short?)",
+                f"{n_seen} complete events (cut short?)",
                 strict,
-                held,
-                held_n,
             )
-        if held_n:
-            total += held_n
-            yield _to_awkward(_concat(held))
+        if chunk is not None and chunk.n:
+            out = chunk.to_awkward()
+            chunk = None
+            yield out
     finally:
         reader.close()
         for _, fut in pending:
@@ -536,27 +797,7 @@ def _iterate(source: Source, step: int, strict: bool, threads: int) -> Iterator[
         pool.shutdown(wait=True)
 
 
-def _problem(msg: str, strict: bool, held: list[_Piece], held_n: int) -> None:
+def _problem(msg: str, strict: bool) -> None:
     if strict:
         raise LHEError(msg + "; use strict=False to read the complete events")
     warnings.warn(msg + "; the complete events are delivered", LHEWarning, stacklevel=4)
-
-
-def _take(held: list[_Piece], held_n: int, step: int) -> tuple[_Piece, list[_Piece], int]:
-    """Split exactly ``step`` events off the front of the held pieces."""
-    parts: list[_Piece] = []
-    need = step
-    i = 0
-    while need > 0:
-        p = held[i]
-        if p.n <= need:
-            parts.append(p)
-            need -= p.n
-            i += 1
-        else:
-            parts.append(p.slice(0, need))
-            held = [p.slice(need, p.n), *held[i + 1 :]]
-            i = 0
-            need = 0
-            return _concat(parts), held, held_n - step
-    return _concat(parts), held[i:], held_n - step

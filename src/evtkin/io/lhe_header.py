@@ -294,14 +294,36 @@ def read_preamble(stream: BinaryIO, name: str) -> tuple[bytes, tuple[str, int, i
 _ATTR = re.compile(r"""([A-Za-z_][\w:.-]*)\s*=\s*(?:"([^"]*)"|'([^']*)'|([^\s>/"']+))""")
 
 
+_ENTITY = re.compile(r"&(lt|gt|amp|quot|apos|#[0-9]+|#[xX][0-9a-fA-F]+);")
+_NAMED = {"lt": "<", "gt": ">", "amp": "&", "quot": '"', "apos": "'"}
+
+
+def _entity(m: re.Match[str]) -> str:
+    name = m.group(1)
+    if name[0] != "#":
+        return _NAMED[name]
+    code = int(name[2:], 16) if name[1] in "xX" else int(name[1:])
+    return chr(code) if 0 < code < 0x110000 else m.group(0)
+
+
+def xml_unescape(text: str) -> str:
+    """Replace the five XML entities and numeric character references (XML 1.0, sec. 4.6)."""
+    return _ENTITY.sub(_entity, text) if "&" in text else text
+
+
+def xml_escape(text: str) -> str:
+    """``&``, ``<``, ``>`` as entities: the form a value takes inside XML text."""
+    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+
+
 def parse_attributes(text: str) -> dict[str, str]:
-    """Attributes of an XML-ish start tag (quoted with ``"`` or ``'``, or bare)."""
+    """Attributes of an XML-ish start tag (quoted with ``"`` or ``'``, or bare), unescaped."""
     out: dict[str, str] = {}
     for m in _ATTR.finditer(text):
         value = m.group(2) if m.group(2) is not None else m.group(3)
         if value is None:
             value = m.group(4)
-        out[m.group(1)] = value
+        out[m.group(1)] = xml_unescape(value)
     return out
 
 
@@ -381,7 +403,7 @@ def _parse_weights(
             end = text.find("</" + m.group(2), m.end())
             if end < 0:
                 end = text.find("<", m.end())
-            body = text[m.end() : end if end >= 0 else len(text)].strip()
+            body = xml_unescape(text[m.end() : end if end >= 0 else len(text)].strip())
         if wid is None:
             wid = body or str(len(names))
         names.append(wid)
@@ -449,7 +471,7 @@ def parse_preamble(data: bytes, parts: tuple[str, int, int, int, int, int], name
     generators = []
     for g in _GENERATOR.finditer(init_text):
         attrs = parse_attributes(g.group(1))
-        gname = attrs.get("name") or g.group(3).strip() or "?"
+        gname = attrs.get("name") or xml_unescape(g.group(3).strip()) or "?"
         generators.append((gname, attrs.get("version")))
 
     return LHEInfo(
