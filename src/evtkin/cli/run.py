@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -34,6 +35,25 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                    help="read at most N events from each input file")
     p.add_argument("--step-size", metavar="N", type=_positive,
                    help="events per chunk (memory vs overhead; results do not depend on it)")
+    where = p.add_argument_group(
+        "where the work runs",
+        "The inputs are split into work units (whole files; plain LHE files also into byte "
+        "ranges of whole events) that run in parallel; the results do not depend on how.",
+    )
+    where.add_argument("--jobs", "-j", metavar="N", type=_positive,
+                       help="local worker processes (default: every available core); with "
+                       "--dask local, the number of Dask workers")
+    where.add_argument("--dask", metavar="ADDRESS",
+                       help="run on a Dask cluster: a scheduler address (tcp://host:8786), a "
+                       "scheduler.json file, or 'local' to start a local cluster for this run "
+                       "(needs the [dask] extra)")
+    where.add_argument("--unit-size", metavar="MB", type=_positive,
+                       help="split plain LHE files into byte-range units of about MB megabytes "
+                       "(default: automatic, a few units per worker)")
+    where.add_argument("--skip-bad", action="store_true",
+                       help="skip work units that fail (e.g. a corrupt file), finish the rest "
+                       "and list what was skipped in the provenance and the results (default: "
+                       "stop at the first failure)")
     p.set_defaults(func=main)
     return p
 
@@ -45,8 +65,16 @@ def main(args: argparse.Namespace) -> int:
     cfg = load_config(args.config)
     out = Path(args.out) if args.out else (cfg.output.directory
                                            or Path(args.config).resolve().parent / "evtkin-output")
-    result = run(cfg, out=out, max_events=args.max_events, step_size=args.step_size,
-                 progress=None)
+    input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
+                      if f.is_file())
+    executor = make_executor(jobs=args.jobs, dask=args.dask, input_bytes=input_bytes)
+    restore = _terminate_like_interrupt()
+    try:
+        result = run(cfg, out=out, max_events=args.max_events, step_size=args.step_size,
+                     progress=None, executor=executor, skip_bad=args.skip_bad,
+                     unit_bytes=args.unit_size * 1_000_000 if args.unit_size else None)
+    finally:
+        restore()
     for name, s in result.samples.items():
         sigma = f"{s.xsec.sigma_pb:.6g} pb" if s.xsec is not None else "n/a"
         print(f"{name}: {s.n_events} events, σ = {sigma}, "
@@ -54,5 +82,53 @@ def main(args: argparse.Namespace) -> int:
         if s.xsec is not None:
             for w in s.xsec.warnings:
                 print(f"  warning: {w}", file=sys.stderr)
+    skipped = result.provenance.get("skipped") or []
+    for rec in skipped:
+        where = rec["path"]
+        if rec.get("byte_range"):
+            where += f" (bytes {rec['byte_range'][0]}-{rec['byte_range'][1]})"
+        print(f"  skipped: {where}: {rec['error']}", file=sys.stderr)
+    if skipped:
+        print(f"warning: {len(skipped)} work unit(s) skipped (--skip-bad); they are listed in "
+              "provenance.json and results.json", file=sys.stderr)
     print(f"results written to {out}")
     return 0
+
+
+def _terminate_like_interrupt() -> Callable[[], None]:
+    """SIGTERM (a batch system stopping the job) stops the run like Ctrl-C: workers are
+    stopped, no output file is left half-written. Returns a function restoring the handler."""
+    import signal
+    import threading
+
+    def handler(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    if (threading.current_thread() is not threading.main_thread()
+            or signal.getsignal(signal.SIGTERM) != signal.SIG_DFL):
+        return lambda: None
+    signal.signal(signal.SIGTERM, handler)
+
+    def restore() -> None:
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+    return restore
+
+
+#: without --jobs, inputs smaller than this run in one process (starting workers costs more)
+SMALL_INPUT_BYTES = 32_000_000
+
+
+def make_executor(*, jobs: int | None = None, dask: str | None = None,
+                  input_bytes: int | None = None) -> Any:
+    """The executor for ``--jobs``/``--dask``: one process for ``--jobs 1`` (or, without
+    ``--jobs``, for inputs under :data:`SMALL_INPUT_BYTES`), a local process pool otherwise
+    (default: every core), a Dask cluster with ``--dask``."""
+    from evtkin.run.executors import DaskExecutor, ProcessExecutor, SerialExecutor
+
+    if dask:
+        return DaskExecutor(dask, n_workers=jobs)
+    if jobs == 1 or (jobs is None and input_bytes is not None
+                     and input_bytes < SMALL_INPUT_BYTES):
+        return SerialExecutor()
+    return ProcessExecutor(jobs)

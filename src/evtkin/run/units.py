@@ -196,15 +196,15 @@ def make_units(plan: Plan, *, workers: int = 1, unit_bytes: int | None = None
     """
     if unit_bytes is not None and unit_bytes <= 0:
         raise ConfigError(f"unit size must be a positive number of bytes, got {unit_bytes}")
-    inputs = []
+    inputs: list[tuple[str, int, str, str, int]] = []
     for name, sample in plan.config.samples.items():
         fmt = getattr(sample, "format", "lhe")
-        for i, path in enumerate(sample.files):
-            if not path.is_file():
+        for i, file in enumerate(sample.files):
+            if not file.is_file():
                 raise ConfigError(
-                    f"{plan.config.source}: samples.{name}.files[{i}]: no such file: {path}"
+                    f"{plan.config.source}: samples.{name}.files[{i}]: no such file: {file}"
                 )
-            inputs.append((name, i, str(path), fmt, path.stat().st_size))
+            inputs.append((name, i, str(file), fmt, file.stat().st_size))
     total = sum(x[4] for x in inputs)
     if unit_bytes is not None:
         target: int | None = unit_bytes
@@ -252,7 +252,7 @@ def _lhe_reader(unit: WorkUnit, step_size: int, threads: int | None) -> Iterator
 
     if unit.byte_range is None:
         return read_lhe(unit.path, step_size=step_size, threads=threads)
-    return read_lhe(unit.path, step_size=step_size, threads=threads,  # type: ignore[call-arg]
+    return read_lhe(unit.path, step_size=step_size, threads=threads,
                     byte_range=unit.byte_range)
 
 
