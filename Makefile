@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test lint typecheck bench samples clean
+.PHONY: demo test lint bench samples clean
 
 $(STAMP): pyproject.toml
 	@$(PYTHON) -c 'import sys; sys.exit(0 if sys.version_info >= (3, 10) else "evtkin needs Python >= 3.10")'
@@ -15,19 +15,28 @@ $(STAMP): pyproject.toml
 
 test: $(STAMP)
 	$(VENV)/bin/ruff check src tests bench
+	$(VENV)/bin/mypy
 	$(VENV)/bin/pytest
 
 lint: $(STAMP)
 	$(VENV)/bin/ruff check src tests bench
 	$(VENV)/bin/mypy
 
-typecheck: lint
-
 demo: $(STAMP)
 	bash scripts/demo.sh
 
 bench: $(STAMP)
-	$(PY) bench/run_all.py
+	$(PY) bench/make_big_lhe.py --gzip
+	$(PY) bench/bench_lhe.py
+	$(PY) bench/bench_fill.py
+	$(PY) bench/bench_ntuple.py
+
+# the shipped toy samples (see samples/README.md for what they are)
+samples: $(STAMP)
+	$(VENV)/bin/evtkin toy ttbar    -n 5000  --seed 1301 --precision 10 -o samples/toy_ttbar.lhe.gz
+	$(VENV)/bin/evtkin toy deformed -n 5000  --seed 1302 --precision 10 --deform-lambda 1000 -o samples/toy_ttbar_deformed.lhe.gz
+	$(VENV)/bin/evtkin toy drellyan -n 8000  --seed 1303 --precision 10 -o samples/toy_drellyan.lhe.gz
+	$(VENV)/bin/evtkin toy ntuple   -n 20000 --seed 1304 -o samples/toy_ttbar_reco.root
 
 clean:
 	rm -rf $(VENV) build dist .pytest_cache .ruff_cache .mypy_cache demo-output

@@ -191,7 +191,7 @@ def finalise_responses(plan: Any, partial: Any, samples: dict[str, Any]) -> None
                     spec = _specs(plan, name)[suffix]
                     w = np.zeros(spec.shape)
                     w2 = np.zeros(spec.shape)
-                parts[suffix] = [w, w2]
+                parts[suffix] = [w, np.asarray(w2)]
             ax = plan.hist_specs[name].axes[0]
             out[name] = Response(name, np.asarray(ax.edges, dtype=np.float64), ax.label, ax.unit,
                                  *parts["#response"], *parts["#truth"], *parts["#reco"])

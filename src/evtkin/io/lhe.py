@@ -165,6 +165,14 @@ def _message(
 class _Scratch:
     """Reusable columns for the events of one buffer (one parse at a time)."""
 
+    ev_pid: np.ndarray
+    ev_f: np.ndarray
+    offsets: np.ndarray
+    group: np.ndarray
+    wts: np.ndarray
+    p_i: np.ndarray
+    p_f: np.ndarray
+
     def __init__(self, nw: int, ids: tuple[str, ...]) -> None:
         self.nw = nw
         self.ids = ids

@@ -965,7 +965,7 @@ def fix_slow_values(
 
     Returns -1 on success, else the byte offset of the first token that is not a number.
     """
-    mv = memoryview(buf)
+    mv = memoryview(buf)  # type: ignore[arg-type]
     for target, index, s, e in slow.tolist():
         tok = bytes(mv[s:e])
         value: float | None

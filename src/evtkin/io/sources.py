@@ -68,7 +68,7 @@ def _open_gzip(path: Source) -> BinaryIO:
 
         return igzip.open(path, "rb")  # type: ignore[no-any-return]
     except ImportError:  # pragma: no cover - isal is a dependency
-        return gzip.open(path, "rb")
+        return gzip.open(path, "rb")  # type: ignore[return-value]
 
 
 class _ZstdStream(io.RawIOBase):
@@ -107,8 +107,8 @@ def open_binary(path: Source) -> BinaryIO:
         if kind == "zstd":
             return io.BufferedReader(_ZstdStream(path), buffer_size=1 << 20)  # type: ignore[return-value]
         if kind == "bz2":
-            return bz2.open(path, "rb")
-        return lzma.open(path, "rb")
+            return bz2.open(path, "rb")  # type: ignore[return-value]
+        return lzma.open(path, "rb")  # type: ignore[return-value]
     except OSError as exc:
         raise LHEError(f"{source_name(path)}: cannot open: {exc.strerror or exc}") from exc
 

@@ -299,6 +299,7 @@ def _reader(plan: Any, unit: Any, spec: Any, truth: bool) -> Any:
                               "needed to match the ntuple with its truth_files")
         fields.append("event_number")
     entry_range = getattr(unit, "entry_range", None)
+    stop: int | None
     if entry_range is not None:
         start, stop = int(entry_range[0]), int(entry_range[1])
         if unit.max_events is not None:
