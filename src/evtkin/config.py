@@ -87,7 +87,7 @@ PARTICLE_CLASSES: dict[str, tuple[int, ...]] = dict(PDG_CLASSES)
 NORMALISATIONS = ("raw", "xsec_per_bin", "events", "unit_area")
 
 COMPOSITE_BUILDS = ("pair", "leptonic_w", "ttbar_lepton_jets")
-OUTPUT_FORMATS = ("root", "json", "csv", "cutflow", "plots")
+OUTPUT_FORMATS = ("root", "json", "csv", "cutflow", "plots", "report")
 PLOT_FORMATS = ("png", "pdf", "svg")
 
 # PDG 2024 (Phys. Rev. D 110, 030001): m_W = 80.3692 GeV, m_t = 172.57 GeV

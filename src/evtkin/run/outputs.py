@@ -77,6 +77,10 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path) -> Path:
         from evtkin.hists.response import write_responses
 
         write_responses(out, result)
+    if "report" in formats:  # last: it reads the folder back (and embeds the plots written above)
+        from evtkin.output.report import write_run_report
+
+        write_run_report(out)
     marker.unlink()
     return out
 
