@@ -4,6 +4,7 @@ failing units and interrupted output, progress. Small LHE files are written by t
 
 from __future__ import annotations
 
+import hashlib
 import itertools
 import json
 import re
@@ -154,7 +155,9 @@ def test_byte_range_units_give_the_whole_file_results(files, reference):
     # each file's checksum and event count are still recorded once
     inputs = res.provenance["inputs"]
     assert [i["events"] for i in inputs] == [N_EVENTS // 3] * 3
-    assert all(i["sha256"] for i in inputs)
+    # hashlib (reference implementation of FIPS 180-4 SHA-256) over the bytes on disk
+    assert [i["sha256"] for i in inputs] == [hashlib.sha256(f.read_bytes()).hexdigest()
+                                             for f in files]
 
 
 # ----------------------------------------------------------------------------- executors
@@ -170,6 +173,11 @@ def test_serial_processes_and_dask_agree(files, reference):
                                             "workers": 2}
     for other in (serial, flat(procs), flat(dask)):
         assert_same(reference, other)
+    # the checksums are computed apart from the units (a parent thread, a Dask task) and
+    # still match hashlib (reference SHA-256, FIPS 180-4) over the bytes on disk
+    want = [hashlib.sha256(f.read_bytes()).hexdigest() for f in files]
+    for res in (procs, dask):
+        assert [i["sha256"] for i in res.provenance["inputs"]] == want
 
 
 def test_process_pool_reports_a_failing_unit(files, tmp_path):

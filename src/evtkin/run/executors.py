@@ -40,9 +40,10 @@ from evtkin.errors import ConfigError, EvtkinError
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.plan import Plan
 from evtkin.run.progress import RunProgress
-from evtkin.run.units import WorkUnit, make_units, process_unit
+from evtkin.run.units import WorkUnit, make_units, process_unit, sha256_of
 
 __all__ = [
+    "Checksums",
     "DaskExecutor",
     "Execution",
     "Executor",
@@ -147,6 +148,10 @@ class _Base:
     def outcomes(self, plan: Plan, units: Sequence[WorkUnit],
                  progress: RunProgress | None = None) -> Iterator[UnitOutcome]:
         raise NotImplementedError  # pragma: no cover
+
+    def checksums(self, paths: Sequence[str]) -> Checksums:
+        """Start computing the SHA-256 of ``paths`` (here: in a thread of this process)."""
+        return _Hasher(paths)
 
     def run(self, plan: Plan, units: Sequence[WorkUnit],
             progress: Any = None) -> Iterator[PartialResult]:
@@ -370,6 +375,13 @@ class DaskExecutor(_Base):
     def describe(self) -> dict[str, Any]:
         return {"kind": "dask", "address": self.address, "workers": self.workers}
 
+    def checksums(self, paths: Sequence[str]) -> Checksums:
+        """Hash ``paths`` on the cluster, one task per file, scheduled before the units
+        (the client may not be able to read the files cheaply)."""
+        if self._client is None:
+            raise RuntimeError("use DaskExecutor as a context manager (with ...:)")
+        return _DaskHashes(self._client, paths)
+
     def outcomes(self, plan: Plan, units: Sequence[WorkUnit],
                  progress: RunProgress | None = None) -> Iterator[UnitOutcome]:
         from distributed import as_completed
@@ -389,6 +401,26 @@ class DaskExecutor(_Base):
         finally:
             client.cancel([f for f in futures if not f.done()])
             client.cancel([plan_f])
+
+
+class _DaskHashes:
+    """SHA-256 tasks of input files on a Dask cluster."""
+
+    def __init__(self, client: Any, paths: Sequence[str]) -> None:
+        self.client = client
+        self.paths = list(dict.fromkeys(paths))
+        token = uuid.uuid4().hex[:12]
+        self.futures = [client.submit(sha256_of, p, key=f"evtkin-sha256-{token}-{k}",
+                                      pure=False, priority=10)
+                        for k, p in enumerate(self.paths)]
+
+    def result(self) -> dict[str, str]:
+        try:
+            sums = self.client.gather(self.futures)
+        except Exception as exc:
+            raise EvtkinError(f"cannot compute the checksum of an input file: "
+                              f"{type(exc).__name__}: {exc}") from None
+        return dict(zip(self.paths, sums, strict=True))
 
 
 def _local_cluster(factory: Any, n_workers: int) -> Any:
@@ -451,6 +483,40 @@ class Execution:
         }
 
 
+class Checksums(Protocol):
+    """The SHA-256 checksums of input files, being computed (see ``Executor.checksums``)."""
+
+    def result(self) -> dict[str, str]: ...  # pragma: no cover
+
+
+class _Hasher:
+    """SHA-256 of files, computed in a background thread of this process (hashlib and file
+    reads release the GIL, so it runs beside the workers or the serial reader)."""
+
+    def __init__(self, paths: Sequence[str]) -> None:
+        self.paths = list(dict.fromkeys(paths))
+        self.sums: dict[str, str] = {}
+        self.error: BaseException | None = None
+        self.thread = threading.Thread(target=self._run, daemon=True, name="evtkin-sha256")
+        if self.paths:
+            self.thread.start()
+
+    def _run(self) -> None:
+        try:
+            for p in self.paths:
+                self.sums[p] = sha256_of(p)
+        except BaseException as exc:  # reported by result()
+            self.error = exc
+
+    def result(self) -> dict[str, str]:
+        """The checksums by path (waits for the thread); raises if a file could not be read."""
+        if self.paths:
+            self.thread.join()
+        if self.error is not None:
+            raise EvtkinError(f"cannot compute the checksum of an input file: {self.error}")
+        return self.sums
+
+
 def _indexed(units: Sequence[WorkUnit]) -> list[WorkUnit]:
     return [u if u.index == k else dataclasses.replace(u, index=k)
             for k, u in enumerate(units)]
@@ -478,13 +544,25 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
     :class:`UnitError`. Config errors found while running always stop the run.
     ``progress``: a progress bar on stderr (``None``: only on a terminal). ``unit_bytes``:
     target size of byte-range units (default: automatic from the number of workers).
+    The SHA-256 of each LHE input is computed apart from the units when the executor has a
+    ``checksums(paths)`` method (all executors here do) and recorded in the merged result.
     """
     ex: Any = executor or SerialExecutor()
     t0 = time.perf_counter()
+    hasher: Checksums | None = None
     with ex:
         if units is None:
             units = make_units(plan, workers=ex.workers, unit_bytes=unit_bytes)
         units = _indexed(units)
+        start_checksums = getattr(ex, "checksums", None)
+        if start_checksums is not None:
+            # hash the LHE inputs as separate work (local executors: a thread of this
+            # process, overlapping the worker start-up and the event processing; Dask: a
+            # task of its own) instead of inside the unit that starts each file, which
+            # made that unit the straggler
+            units = [dataclasses.replace(u, checksum=False)
+                     if u.format == "lhe" and u.starts_file else u for u in units]
+            hasher = start_checksums([u.path for u in units if not u.checksum])
         results: dict[int, PartialResult] = {}
         skipped: list[dict[str, Any]] = []
         peak: dict[int, float] = {}
@@ -506,8 +584,12 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
                 close = getattr(stream, "close", None)
                 if close is not None:
                     close()
+        sums = hasher.result() if hasher is not None else {}
         record = ex.describe()
     partial = merge_all(results[i] for i in sorted(results))
+    for rec in partial.files.values():
+        if rec.sha256 is None and rec.path in sums:
+            rec.sha256 = sums[rec.path]
     skipped.sort(key=lambda r: (r["sample"], r["file_index"], r["part"]))
     return Execution(partial, list(units), skipped, record, time.perf_counter() - t0, peak,
                      cpu)

@@ -59,7 +59,8 @@ class WorkUnit:
     ``byte_range`` = ``(start, stop)``: decompressed byte offsets of a plain LHE file; the
     range starts at an ``<event`` tag and holds whole events only. ``entry_range`` =
     ``(start, stop)``: tree entries of a ROOT ntuple. ``part``/``n_parts`` number the parts
-    of one file (part 0 records the file's checksum); ``size`` is the number of bytes on
+    of one file (part 0 records the file's checksum, unless ``checksum`` is false because
+    the run computes it separately); ``size`` is the number of bytes on
     disk the unit covers (for throughput figures); ``index`` is the unit's position in the
     run.
     """
@@ -76,6 +77,7 @@ class WorkUnit:
     size: int = 0
     format: str = "lhe"
     index: int = 0
+    checksum: bool = True  # False: the run hashes the file elsewhere (see executors.execute)
 
     @property
     def starts_file(self) -> bool:
@@ -321,7 +323,7 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     result = PartialResult()
     result.files[(sample, unit.file_index)] = FileRecord(
         sample, unit.file_index, unit.path, os.path.getsize(unit.path),
-        sha256_of(unit.path) if unit.starts_file else None, 0, info,
+        sha256_of(unit.path) if unit.starts_file and unit.checksum else None, 0, info,
     )
     seconds = {"read": 0.0, "select": 0.0, "fill": 0.0}
     n_rows = len(plan.cutflow_rows)
