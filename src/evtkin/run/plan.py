@@ -24,6 +24,7 @@ from evtkin.expr import Expression, ExpressionError, evaluate
 from evtkin.hists.fill import AxisSpec, HistSpec
 from evtkin.select import composites as comp
 from evtkin.select import jets as jetalg
+from evtkin.select import kinematics as kin
 from evtkin.select import objects as obj
 from evtkin.select import truth
 
@@ -167,7 +168,9 @@ class ChunkView:
             objs = obj.apply_overlap_removal(
                 objs, [(o.remove, o.near, o.within_dr) for o in cfg.overlap_removal]
             )
-        self._cache.update(objs)
+        # one gather per field now instead of one per use: selection, overlap removal and
+        # slicing leave chains of index nodes that every later field access would resolve again
+        self._cache.update({name: ak.to_packed(o) for name, o in objs.items()})
         if cfg.missing_pt is not None:
             invisible = obj.select(particles, pdgids=cfg.missing_pt.pdgids, status=1, sort=False)
             self._cache[cfg.missing_pt.name] = obj.missing_pt(invisible)
@@ -270,6 +273,18 @@ def hist_entries(view: ChunkView, name: str, mask: np.ndarray
         values.append(v[mask])
     if len(values) == 2 and (values[0].ndim > 1 or values[1].ndim > 1):
         values = list(ak.broadcast_arrays(*values))
+    flat_event = [_event_column(v) for v in values]
+    if all(f is not None for f in flat_event):  # one number per event: plain numpy from here
+        keep_rows = np.ones(len(rows_all), dtype=bool)
+        cols = []
+        for f in flat_event:
+            assert f is not None
+            col, none = f
+            keep_rows &= ~none
+            cols.append(col)
+        if keep_rows.all():
+            return cols, rows_all
+        return [c[keep_rows] for c in cols], rows_all[keep_rows]
     first = values[0]
     if first.ndim == 2:
         counts = ak.to_numpy(ak.num(first, axis=1))
@@ -288,3 +303,23 @@ def hist_entries(view: ChunkView, name: str, mask: np.ndarray
         out = [o[keep] for o in out]
         rows = rows[keep]
     return out, rows
+
+
+def _event_column(values: ak.Array) -> tuple[np.ndarray, np.ndarray] | None:
+    """``(float64 values, missing)`` of a one-number-per-event array read from its buffers
+    (missing values as NaN in the first); ``None`` for other layouts."""
+    layout = values.layout
+    if values.ndim != 1:
+        return None
+    if layout.is_option:
+        if layout.content.is_option or layout.content.is_union:
+            return None
+        index = (layout.index.data if layout.is_indexed
+                 else layout.to_IndexedOptionArray64().index.data)
+        missing = np.asarray(index) < 0
+    else:
+        missing = np.zeros(len(values), dtype=bool)
+    col = kin._layout_numpy(layout)
+    if col is None:
+        return None
+    return col, missing

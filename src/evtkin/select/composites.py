@@ -401,7 +401,8 @@ def _role_masks(jets: Array, bjet_mask: Array | None, n: int) -> tuple[np.ndarra
 def _p4_at(rows: np.ndarray, idx: np.ndarray, valid: np.ndarray) -> np.ndarray:
     safe = np.where(valid, idx, 0)
     out = rows[safe] if rows.shape[0] else np.zeros((idx.size, 4))
-    return np.where(valid[:, None], out, np.nan)
+    out[~valid] = np.nan
+    return out
 
 
 def _p4_array(v: np.ndarray, valid: np.ndarray) -> ak.Array:

@@ -202,26 +202,29 @@ def cluster(
     """
     if not radius > 0.0:
         raise ValueError(f"jet radius must be positive, got {radius!r}")
-    px, py, pz, e = kin.components(particles)
-    counts = ak.to_numpy(ak.num(px, axis=1)).astype(np.int64)
+    counts_or_none, fx, fy, fz, fe = kin.flat_components(particles)
+    if counts_or_none is None:
+        raise ValueError("cluster needs a jagged [event][particle] array of four-momenta")
+    counts = counts_or_none
     offsets = np.zeros(len(counts) + 1, dtype=np.int64)
     np.cumsum(counts, out=offsets[1:])
 
-    def flat(x: Array) -> np.ndarray:
-        return np.ascontiguousarray(ak.to_numpy(ak.flatten(x, axis=1)), dtype=np.float64)
+    def flat(x: np.ndarray) -> np.ndarray:
+        return np.ascontiguousarray(x, dtype=np.float64)
 
     if "pdgid" in ak.fields(particles):
-        from evtkin.select.objects import match_pdgid
+        from evtkin.select.objects import _int_column, _isin
 
-        tag = match_pdgid(particles["pdgid"], tuple(btag_pdgids))
-        flag = np.ascontiguousarray(ak.to_numpy(ak.flatten(tag, axis=1)), dtype=np.int64)
+        ids = _int_column(ak.flatten(particles["pdgid"], axis=1))
+        wanted = np.abs(np.array(tuple(btag_pdgids), dtype=np.int64))
+        flag = _isin(np.abs(ids), wanted).astype(np.int64)
     else:
         flag = np.zeros(int(offsets[-1]), dtype=np.int64)
     jx, jy, jz, je, ncon, nflag, njets, jet_of = _cluster_kernel(
-        flat(px),
-        flat(py),
-        flat(pz),
-        flat(e),
+        flat(fx),
+        flat(fy),
+        flat(fz),
+        flat(fe),
         flag,
         offsets,
         float(radius),

@@ -129,9 +129,44 @@ def components(obj: Array) -> tuple[Array, Array, Array, Array]:
     return px, py, pz, e
 
 
+def _layout_numpy(layout: Any) -> np.ndarray | None:
+    """Float64 numpy values of a flat layout (plain numbers, possibly behind index or option
+    nodes; missing values as NaN) read straight from its buffers; ``None`` for other layouts."""
+    if layout.is_numpy:
+        data = layout.data
+        if data.ndim != 1 or data.dtype.kind not in "biuf":
+            return None
+        return np.asarray(data, dtype=np.float64)
+    if layout.is_indexed or layout.is_option:
+        if layout.is_unknown or not hasattr(layout, "content"):
+            return None
+        if layout.is_option:
+            if layout.is_indexed:
+                index = np.asarray(layout.index.data, dtype=np.int64)
+            else:
+                index = np.asarray(layout.to_IndexedOptionArray64().index.data, dtype=np.int64)
+        else:
+            index = np.asarray(layout.index.data, dtype=np.int64)
+        inner = _layout_numpy(layout.content)
+        if inner is None:
+            return None
+        if not layout.is_option:
+            return inner[index]
+        missing = index < 0
+        if inner.size == 0:
+            return np.full(index.size, np.nan) if missing.all() else None
+        out = inner[np.where(missing, 0, index)]
+        out[missing] = np.nan
+        return out
+    return None
+
+
 def _np(values: Array) -> np.ndarray:
     """A flat awkward/numpy column as float64 numpy, missing values as NaN."""
     if isinstance(values, ak.Array):
+        fast = _layout_numpy(values.layout)
+        if fast is not None:
+            return fast
         values = ak.to_numpy(ak.fill_none(values, np.nan))
     return np.asarray(values, dtype=np.float64)
 
@@ -179,20 +214,88 @@ def flat_components(obj: Array) -> tuple[np.ndarray | None, np.ndarray, np.ndarr
     return counts, px, py, pz, e
 
 
-def _numpy_path(obj: Array, compute: Any) -> Array | None:
-    """Evaluate ``compute(px, py, pz, E)`` on flat numpy columns and give the result the shape
-    of ``obj`` (one record per event, None kept; or a jagged collection of plain records).
-    ``None`` when ``obj`` has another layout (the awkward path then handles it)."""
+def _plain_records(obj: Array) -> bool:
+    """True for an awkward array of records (one per event, maybe missing, or a jagged
+    collection) whose fields hold no missing values themselves."""
     if not isinstance(obj, ak.Array) or not _fields(obj):
-        return None
+        return False
     layout = obj.layout
     inner = layout.content if obj.ndim == 2 and layout.is_list else layout
     if inner.is_option and obj.ndim == 1:
         inner = inner.content
     while inner.is_indexed:
         inner = inner.content
-    if not inner.is_record or any(inner.content(f).is_option for f in inner.fields):
-        return None  # missing values inside the records: the awkward path keeps them as None
+    return bool(inner.is_record) and not any(inner.content(f).is_option for f in inner.fields)
+
+
+def _component_fields(fields: list[str]) -> list[str] | None:
+    """The fields :func:`flat_components` reads (``None`` when it would raise)."""
+    last = _first(fields, _ENERGY_NAMES) or _first(fields, _MASS_NAMES)
+    if last is None:
+        return None
+    if {"px", "py", "pz"} <= set(fields):
+        return ["px", "py", "pz", last]
+    if {"x", "y", "z"} <= set(fields):
+        return ["x", "y", "z", last]
+    if {"pt", "eta", "phi"} <= set(fields) or {"rho", "eta", "phi"} <= set(fields):
+        return ["pt" if "pt" in fields else "rho", "eta", "phi", last]
+    return None
+
+
+def _field_missing(obj: Array) -> np.ndarray | None:
+    """For one record per event whose four-momentum fields may be missing (e.g. records zipped
+    from optional columns): the events where they are, when all of them are missing in the same
+    events (any awkward arithmetic on them then gives None exactly there); else ``None``."""
+    if not isinstance(obj, ak.Array) or obj.ndim != 1:
+        return None
+    used = _component_fields(_fields(obj))
+    if used is None:
+        return None
+    missing = None
+    for name in used:
+        col = obj[name]
+        if col.ndim != 1 or _fields(col):
+            return None
+        none = np.asarray(ak.to_numpy(ak.is_none(col, axis=0)), dtype=bool)
+        if missing is None:
+            missing = none
+        elif not np.array_equal(missing, none):
+            return None
+    return missing
+
+
+def _per_event_flat(*objs: Array) -> tuple[list[tuple[np.ndarray, ...]], np.ndarray | None] | None:
+    """``(px, py, pz, E)`` numpy columns of each of ``objs`` (one record per event each, maybe
+    missing) and the events where any is missing (``None`` when no input can be missing);
+    ``None`` when some input has another layout."""
+    if not all(isinstance(o, ak.Array) and o.ndim == 1 and _plain_records(o) for o in objs):
+        return None
+    cols: list[tuple[np.ndarray, ...]] = [flat_components(o)[1:] for o in objs]
+    missing: np.ndarray | None = None
+    for o in objs:
+        if o.layout.is_option:
+            none = np.asarray(ak.to_numpy(ak.is_none(o, axis=0)), dtype=bool)
+            missing = none if missing is None else missing | none
+    return cols, missing
+
+
+def _as_event_array(values: np.ndarray, missing: np.ndarray | None) -> ak.Array:
+    out = ak.Array(values)
+    return out if missing is None else ak.mask(out, ~missing)
+
+
+def _numpy_path(obj: Array, compute: Any) -> Array | None:
+    """Evaluate ``compute(px, py, pz, E)`` on flat numpy columns and give the result the shape
+    of ``obj`` (one record per event, None kept; or a jagged collection of plain records).
+    ``None`` when ``obj`` has another layout (the awkward path then handles it)."""
+    if not _plain_records(obj):
+        missing = _field_missing(obj)
+        if missing is None:
+            return None  # other missing values inside the records: the awkward path
+        _, px, py, pz, e = flat_components(obj)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return ak.mask(ak.Array(compute(px, py, pz, e)), ~missing)
+    layout = obj.layout
     if obj.ndim == 1:
         _, px, py, pz, e = flat_components(obj)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -458,6 +561,10 @@ def helicity_angle(daughter: Array, parent: Array, grandparent: Array) -> Array:
     free of the Wigner rotation that appears when the daughter is boosted to the parent frame
     straight from the lab while the parent direction is taken in the grandparent frame.
     """
+    flat = _per_event_flat(daughter, parent, grandparent)
+    if flat is not None:  # numpy columns: much cheaper than awkward arithmetic on option types
+        (d, par, g), missing = flat
+        return _as_event_array(_helicity_cos(d, par, g), missing)
     return _helicity_cos(components(daughter), components(parent), components(grandparent))
 
 
@@ -468,13 +575,19 @@ def cos_theta_star(daughter: Array, parent: Array, reference: Array | None = Non
     With a four-momentum ``reference`` the axis is the parent's direction in the reference's rest
     frame (same as :func:`helicity_angle`).
     """
-    d = components(daughter)
-    par = components(parent)
+    flat = _per_event_flat(daughter, parent, *(() if reference is None else (reference,)))
+    if flat is not None:  # numpy columns: much cheaper than awkward arithmetic on option types
+        cols, missing = flat
+        d, par = cols[0], cols[1]
+    else:
+        d, par = components(daughter), components(parent)
     if reference is None:
         zero = 0.0 * par[0]
         lab = (zero, zero, zero, zero + 1.0)  # an observer at rest in the lab
-        return _helicity_cos(d, par, lab)
-    return _helicity_cos(d, par, components(reference))
+        out = _helicity_cos(d, par, lab)
+    else:
+        out = _helicity_cos(d, par, cols[2] if flat is not None else components(reference))
+    return out if flat is None else _as_event_array(out, missing)
 
 
 def collins_soper_cos_theta(lepton: Array, antilepton: Array) -> Array:
