@@ -317,11 +317,10 @@ def process_ntuple_unit(plan: Any, unit: Any, progress: Progress | None = None) 
     The same steps as :func:`evtkin.run.units.process_unit` for LHE files; with ``truth_files``
     the response matrices of the histograms marked ``response = true`` are filled as well.
     """
-    from evtkin.hists.fill import HistAccumulator, fill_many
     from evtkin.hists.response import fill_responses, response_names
     from evtkin.run.partial import FileRecord, PartialResult
     from evtkin.run.plan import analyse_chunk, hist_entries
-    from evtkin.run.units import _add_cutflow, _add_totals, _weights, sha256_of
+    from evtkin.run.units import _weights, fill_by_process, sha256_of
 
     cfg = plan.config
     spec = cfg.samples[unit.sample]
@@ -335,7 +334,6 @@ def process_ntuple_unit(plan: Any, unit: Any, progress: Progress | None = None) 
     join = (TruthJoin([str(p) for p in spec.truth_files], plan.step_size,
                       f"{unit.path} (samples.{sample}.truth_files)") if responses else None)
     result = PartialResult()
-    n_rows = len(plan.cutflow_rows)
     seconds = {"read": 0.0, "select": 0.0, "fill": 0.0}
     variations: tuple[str, ...] | None = None
     n_total = 0
@@ -363,27 +361,14 @@ def process_ntuple_unit(plan: Any, unit: Any, progress: Progress | None = None) 
             t2 = time.perf_counter()
             seconds["select"] += t2 - t1
             w0, wv = _weights(chunk)
-            pid = np.asarray(ak.to_numpy(chunk["process_id"]), dtype=np.int64)
-            pids = [int(pid[0])] if np.all(pid == pid[0]) else [int(p) for p in np.unique(pid)]
-            for p in pids:
-                key = (sample, unit.file_index, p)
-                in_p = None if len(pids) == 1 else pid == p
-                _add_totals(result, key, w0, wv, in_p)
-                _add_cutflow(result, key, masks, w0, in_p, n_rows)
-                items = []
-                for name in hist_names:
-                    values, rows = entries[name]
-                    if in_p is not None:
-                        sel = in_p[rows]
-                        values, rows = [v[sel] for v in values], rows[sel]
-                    hkey = (sample, name, unit.file_index, p)
-                    acc = result.hists.get(hkey)
-                    if acc is None:
-                        acc = result.hists[hkey] = HistAccumulator(plan.hist_specs[name],
-                                                                   variations)
-                    items.append((acc, values, rows))
-                fill_many(items, weight=w0, variations=wv)
-                if truth is not None:
+            fill_by_process(plan, result, sample, unit.file_index, chunk, masks, entries,
+                            w0, wv, variations)
+            if truth is not None:
+                pid = np.asarray(ak.to_numpy(chunk["process_id"]), dtype=np.int64)
+                pids = np.unique(pid)
+                for p in pids:
+                    in_p = None if pids.size == 1 else pid == p
+                    key = (sample, unit.file_index, int(p))
                     fill_responses(plan, result, key, responses, (view, masks), truth, w0, in_p)
             n_total += n
             t0 = time.perf_counter()

@@ -298,6 +298,45 @@ def _weights(chunk: Any) -> tuple[np.ndarray, np.ndarray]:
     return w0, wv
 
 
+def fill_by_process(
+    plan: Plan,
+    result: PartialResult,
+    sample: str,
+    file_index: int,
+    chunk: Any,
+    masks: Any,
+    entries: dict[str, Any],
+    w0: np.ndarray,
+    wv: np.ndarray,
+    variations: tuple[str, ...],
+    group: np.ndarray | None = None,
+) -> None:
+    """Add one analysed chunk to ``result``, separately for each process id it holds.
+
+    Totals (for the cross-section bookkeeping), cutflow counters and histograms are kept per
+    (sample, file, process id), so that each gets its own normalisation factor after the merge.
+    """
+    n_rows = len(plan.cutflow_rows)
+    pid = np.asarray(ak.to_numpy(chunk["process_id"]), dtype=np.int64)
+    pids = [int(pid[0])] if np.all(pid == pid[0]) else [int(p) for p in np.unique(pid)]
+    for p in pids:
+        key = (sample, file_index, p)
+        in_p = None if len(pids) == 1 else pid == p
+        _add_totals(result, key, w0, wv, in_p)
+        _add_cutflow(result, key, masks, w0, in_p, n_rows)
+        items = []
+        for name, (values, rows) in entries.items():
+            if in_p is not None:
+                sel = in_p[rows]
+                values, rows = [v[sel] for v in values], rows[sel]
+            hkey = (sample, name, file_index, p)
+            acc = result.hists.get(hkey)
+            if acc is None:
+                acc = result.hists[hkey] = HistAccumulator(plan.hist_specs[name], variations)
+            items.append((acc, values, rows))
+        fill_many(items, weight=w0, variations=wv, group=group)
+
+
 def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *,
                  read_threads: int | None = None) -> PartialResult:
     """Read and analyse one unit; return its partial result.
@@ -326,7 +365,6 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
         sha256_of(unit.path) if unit.starts_file and unit.checksum else None, 0, info,
     )
     seconds = {"read": 0.0, "select": 0.0, "fill": 0.0}
-    n_rows = len(plan.cutflow_rows)
     t0 = time.perf_counter()
     for chunk in _chunks(unit, plan.step_size, read_threads):
         t1 = time.perf_counter()
@@ -349,25 +387,8 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
         # LHEF 2.0 <eventgroup>: one statistical unit (weights summed per bin before squaring)
         group = (np.asarray(ak.to_numpy(chunk["group"]), dtype=np.int64)
                  if "group" in ak.fields(chunk) else None)
-        pid = np.asarray(ak.to_numpy(chunk["process_id"]), dtype=np.int64)
-        pids = [int(pid[0])] if np.all(pid == pid[0]) else [int(p) for p in np.unique(pid)]
-        for p in pids:
-            key = (sample, unit.file_index, p)
-            in_p = None if len(pids) == 1 else pid == p
-            _add_totals(result, key, w0, wv, in_p)
-            _add_cutflow(result, key, masks, w0, in_p, n_rows)
-            items = []
-            for name in hist_names:
-                values, rows = entries[name]
-                if in_p is not None:
-                    sel = in_p[rows]
-                    values, rows = [v[sel] for v in values], rows[sel]
-                hkey = (sample, name, unit.file_index, p)
-                acc = result.hists.get(hkey)
-                if acc is None:
-                    acc = result.hists[hkey] = HistAccumulator(plan.hist_specs[name], variations)
-                items.append((acc, values, rows))
-            fill_many(items, weight=w0, variations=wv, group=group)
+        fill_by_process(plan, result, sample, unit.file_index, chunk, masks, entries,
+                        w0, wv, variations, group)
         result.files[(sample, unit.file_index)].n_events += n
         t0 = time.perf_counter()
         seconds["fill"] += t0 - t2
