@@ -64,6 +64,7 @@ def test_plot_rejects_different_binning(tmp_path: Path) -> None:
     [
         ("m_{jjb} [GeV]", "$m_{jjb}$ [GeV]"),
         ("p_T^{t,had} [GeV]", "$p_T^{t,had}$ [GeV]"),
+        ("m_{tt̄} [GeV]", r"$m_{t\bar{t}}$ [GeV]"),  # the combining bar survives as \bar
         ("cos θ*", "cos θ*"),  # nothing to render
         ("top_pt", "top_pt"),  # an identifier, not a subscript
         ("$m_{ll}$", "$m_{ll}$"),  # already mathtext

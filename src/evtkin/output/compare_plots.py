@@ -33,6 +33,7 @@ import numpy as np
 
 from evtkin.compare import HistComparison, HistData, compare_histograms
 from evtkin.errors import ResultsError
+from evtkin.output.plots import display_label
 
 __all__ = [
     "ComparisonEntry",
@@ -189,7 +190,10 @@ def _axis_label(hr: Any) -> str:
 
 def _y_label(hr: Any, shape_only: bool) -> str:
     if shape_only:
-        return "fraction per unit x" if hr.normalisation == "xsec_per_bin" else "fraction"
+        if hr.normalisation != "xsec_per_bin":
+            return "fraction"
+        ax = hr.axes[0]
+        return f"fraction per {ax.unit}" if getattr(ax, "unit", "") else "fraction per unit"
     text = hr.y_label or ""
     return f"{text} [{hr.y_unit}]" if getattr(hr, "y_unit", "") else text
 
@@ -421,7 +425,7 @@ def plot_comparison(
         lab = f"{c.label_b}  χ²/ndf = {chi.statistic:.3g}/{chi.ndf}, p = {chi.p_value:.3g}"
         ax.stairs(v, edges, color=col, label=lab)
         ax.errorbar(centres, v, yerr=e, fmt="none", ecolor=col, elinewidth=1)
-    ax.set_ylabel(entry.y_label)
+    ax.set_ylabel(display_label(entry.y_label))
     ax.set_title(entry.title, fontsize=10)
     ax.legend(fontsize=7, loc="best", frameon=False)
     if np.all(ref_v[np.isfinite(ref_v)] > 0) and ref_v.size and ref_v.max() / ref_v.min() > 1e3:
@@ -480,7 +484,7 @@ def plot_comparison(
             px.axhline(y, color="0.6", linewidth=0.8, linestyle="--")
         px.axhline(0, color="0.3", linewidth=0.8)
         px.set_ylabel("pull", fontsize=8)
-    axes[-1].set_xlabel(entry.x_label)
+    axes[-1].set_xlabel(display_label(entry.x_label))
     axes[-1].set_xlim(edges[0], edges[-1])
     fig.align_ylabels(axes)
     _save_atomic(fig, Path(path))

@@ -40,7 +40,8 @@ def display_label(text: str) -> str:
     parser = MathTextParser("path")
 
     def wrap(m: re.Match[str]) -> str:
-        candidate = f"${m.group(0)}$"
+        # a combining bar (t̄) becomes mathtext's \bar{t}: a combining mark is lost in math mode
+        candidate = "$" + re.sub("(.)[\u0304\u0305]", r"\\bar{\1}", m.group(0)) + "$"
         try:
             parser.parse(candidate)
         except ValueError:
