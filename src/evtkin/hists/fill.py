@@ -30,7 +30,9 @@ from typing import Any, Literal
 import numpy as np
 
 try:  # numba is a declared dependency, but keep a numpy path for environments without it
-    from numba import njit
+    import numba  # noqa: F401
+
+    from evtkin._jit import kernel
 
     _HAVE_NUMBA = True
 except ImportError:  # pragma: no cover - exercised only without numba
@@ -234,7 +236,7 @@ def _lut_cached(edges_t: tuple[float, ...]) -> tuple[np.ndarray, float]:
 
 if _HAVE_NUMBA:
 
-    @njit(nogil=True, cache=True)
+    @kernel()
     def _index_regular_nb(x, n, lo, delta, out, mult, accumulate):  # type: ignore[no-untyped-def]
         for i in range(x.size):
             z = (x[i] - lo) / delta
@@ -247,7 +249,7 @@ if _HAVE_NUMBA:
             else:
                 out[i] = k * mult
 
-    @njit(nogil=True, cache=True)
+    @kernel()
     def _index_variable_nb(x, edges, lut, scale, out, mult, accumulate):  # type: ignore[no-untyped-def]
         m = edges.size
         lo = edges[0]
@@ -277,7 +279,7 @@ if _HAVE_NUMBA:
             else:
                 out[i] = k * mult
 
-    @njit(nogil=True, cache=True)
+    @kernel()
     def _accumulate_nb(gidx, grows, rowflag, starts, w0, wv, out):  # type: ignore[no-untyped-def]
         # ``out`` is bin-major ``(n_bins, 2(1+V))``: [Σw (1+V) | Σw² (1+V)] per bin, one
         # contiguous row. Event-major loop: the extended row [w, w²] of an event is built once
@@ -318,7 +320,7 @@ if _HAVE_NUMBA:
                 ptr[h] = p
 
 
-    @njit(nogil=True, cache=True)
+    @kernel()
     def _accumulate_nominal_nb(gidx, grows, rowflag, starts, w0, out):  # type: ignore[no-untyped-def]
         # nominal weight only: histogram-major, two additions per entry
         for h in range(starts.size - 1):

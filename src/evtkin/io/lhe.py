@@ -78,7 +78,9 @@ def _kernel() -> tuple[Callable[..., Any], str]:
     if _KERNEL is None:
         compiled = c.compiled_kernel()
         if compiled is not None:
-            _KERNEL, _KIND = compiled, "numba"
+            from evtkin._jit import first_call_deferred
+
+            _KERNEL, _KIND = first_call_deferred(compiled), "numba"
         else:
             from evtkin.io.lhe_fallback import scan_kernel_py
 

@@ -14,8 +14,8 @@ from typing import Any, Literal
 
 import awkward as ak
 import numpy as np
-from numba import njit
 
+from evtkin._jit import kernel, plain
 from evtkin.select import kinematics as kin
 
 __all__ = [
@@ -290,13 +290,13 @@ def leptonic_w(
 # ---------- tops
 
 
-@njit(nogil=True, cache=True)
+@plain()
 def _mass(px: float, py: float, pz: float, e: float) -> float:
     m2 = e * e - px * px - py * py - pz * pz
     return math.sqrt(m2) if m2 >= 0.0 else -math.sqrt(-m2)
 
 
-@njit(nogil=True, cache=True)
+@kernel()
 def _assign_kernel(
     jet: np.ndarray,
     jet_off: np.ndarray,

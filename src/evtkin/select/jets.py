@@ -20,8 +20,8 @@ from typing import Any
 
 import awkward as ak
 import numpy as np
-from numba import njit
 
+from evtkin._jit import kernel, plain
 from evtkin.select import kinematics as kin
 
 __all__ = ["antikt", "cluster"]
@@ -31,7 +31,7 @@ _RAPIDITY_CAP = 1.0e5  # rapidity given to particles with E <= |pz| (e.g. massle
 Array = Any
 
 
-@njit(nogil=True, cache=True)
+@plain()
 def _kt2p(px: float, py: float, p: float) -> float:
     pt2 = px * px + py * py
     if pt2 == 0.0:
@@ -43,7 +43,7 @@ def _kt2p(px: float, py: float, p: float) -> float:
     return pt2**p
 
 
-@njit(nogil=True, cache=True)
+@plain()
 def _rap_phi(px: float, py: float, pz: float, e: float) -> tuple[float, float]:
     if e > abs(pz):
         y = 0.5 * math.log((e + pz) / (e - pz))
@@ -52,7 +52,7 @@ def _rap_phi(px: float, py: float, pz: float, e: float) -> tuple[float, float]:
     return y, math.atan2(py, px)
 
 
-@njit(nogil=True, cache=True)
+@kernel()
 def _cluster_kernel(
     px: np.ndarray,
     py: np.ndarray,

@@ -13,8 +13,8 @@ from typing import Any
 
 import awkward as ak
 import numpy as np
-from numba import njit
 
+from evtkin._jit import kernel
 from evtkin.errors import ConfigError
 from evtkin.select import kinematics as kin
 
@@ -102,7 +102,7 @@ def _flat_view(objs: Array) -> tuple[np.ndarray, ak.Array] | None:
     return counts, ak.flatten(objs, axis=1)
 
 
-@njit(nogil=True, cache=True)
+@kernel()
 def _order_desc_kernel(values: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     """Per event (``offsets``), the positions ordered by decreasing value; stable insertion sort
     (events hold a handful of objects). NaN values go last."""
@@ -163,7 +163,7 @@ def _isin(values: np.ndarray, wanted: np.ndarray) -> np.ndarray:
     return _lookup_kernel(np.ascontiguousarray(values, dtype=np.int64), table)
 
 
-@njit(nogil=True, cache=True)
+@kernel()
 def _lookup_kernel(values: np.ndarray, table: np.ndarray) -> np.ndarray:
     """``table[v]`` for every v (False outside the table)."""
     out = np.zeros(values.shape[0], dtype=np.bool_)
@@ -264,7 +264,7 @@ def select(
     return sort_by_pt(out) if sort else out
 
 
-@njit(nogil=True, cache=True)
+@kernel()
 def _near_kernel(
     a: np.ndarray,
     a_off: np.ndarray,
