@@ -21,7 +21,7 @@ import functools
 from collections.abc import Callable, Iterator
 from typing import Any, TypeVar
 
-__all__ = ["deferred_extensions", "first_call_deferred", "kernel", "plain"]
+__all__ = ["deferred_extensions", "first_call_deferred", "kernel", "plain", "wide_vectors"]
 
 F = TypeVar("F", bound=Callable[..., Any])
 
@@ -85,3 +85,39 @@ def kernel(**options: Any) -> Callable[[F], F]:
         return wrapped
 
     return wrap
+
+
+def _make_wide_vectors() -> Any:
+    from numba import types
+    from numba.extending import intrinsic
+
+    @intrinsic  # type: ignore[misc]
+    def wide_vectors(typingctx: Any) -> Any:
+        """Call first in a kernel: let LLVM vectorise its loops with 512-bit registers.
+
+        LLVM prefers 256-bit vectors on CPUs with AVX-512 (a tuning default for mixed code,
+        where wide instructions may lower the clock). For a kernel that is one long
+        vectorised loop of loads, adds and stores, twice the width per instruction pays:
+        bench/bench_fill.py measured the row-adding loop of the histogram fill ~1.6x
+        faster. The hint is an LLVM function attribute of the calling kernel only; on CPUs
+        without 512-bit vectors it changes nothing.
+        """
+        sig = types.void()
+
+        def codegen(context: Any, builder: Any, signature: Any, args: Any) -> Any:
+            attrs = builder.function.attributes
+            # llvmlite checks attribute names against a fixed list that lacks these
+            # string attributes; the set underneath takes them as written
+            set.add(attrs, '"prefer-vector-width"="512"')
+            set.add(attrs, '"min-legal-vector-width"="512"')
+            return context.get_dummy_value()
+
+        return sig, codegen
+
+    return wide_vectors
+
+
+try:
+    wide_vectors = _make_wide_vectors()
+except ImportError:  # pragma: no cover - without numba there are no kernels to tune
+    wide_vectors = None
