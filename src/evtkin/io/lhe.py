@@ -34,7 +34,7 @@ import sys
 import threading
 import warnings
 from collections import deque
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Generator, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
 from typing import Any, BinaryIO
 
@@ -441,9 +441,10 @@ def _cut(buf: bytearray, fill: int, groups: bool) -> int:
 class _Reader:
     """Reads the event part of the stream into reused buffers cut after whole events.
 
-    Runs in its own thread; ``get()`` returns ``(base, array, final, eof, raw)`` in file
-    order (``base``: absolute offset of ``array[0]`` in the decompressed stream; ``raw``:
-    the buffer to hand back with ``recycle``) or raises the reader's exception.
+    ``get()`` returns ``(base, array, final, eof, raw)`` in file order (``base``: absolute
+    offset of ``array[0]`` in the decompressed stream; ``raw``: the buffer to hand back with
+    ``recycle``) or raises the reader's exception. With ``threaded`` the reading and
+    decompression run ahead in a thread of their own; otherwise ``get()`` reads.
     """
 
     def __init__(
@@ -455,6 +456,7 @@ class _Reader:
         groups: bool,
         name: str,
         nbuf: int,
+        threaded: bool = True,
     ) -> None:
         self.stream = stream
         self.first = first
@@ -462,11 +464,16 @@ class _Reader:
         self.stop_at = stop
         self.groups = groups
         self.name = name
-        self.q: queue.Queue[Any] = queue.Queue(maxsize=nbuf)
         self.free: queue.SimpleQueue[bytearray] = queue.SimpleQueue()
         self.stop = threading.Event()
-        self.thread = threading.Thread(target=self._run, name="evtkin-lhe-reader", daemon=True)
-        self.thread.start()
+        self.items = self._produce()
+        self.thread: threading.Thread | None = None
+        if threaded:
+            self.q: queue.Queue[Any] = queue.Queue(maxsize=nbuf)
+            self.thread = threading.Thread(
+                target=self._run, name="evtkin-lhe-reader", daemon=True
+            )
+            self.thread.start()
 
     def _fill(self, mv: memoryview, start: int) -> int:
         """readinto ``mv[start:]`` until full or EOF; returns the new fill level."""
@@ -493,38 +500,42 @@ class _Reader:
             pass
         return bytearray(size)
 
-    def _run(self) -> None:
-        try:
-            carry = self.first
-            base = self.base
-            size = max(BUFFER_BYTES, 2 * len(carry))
-            while not self.stop.is_set():
-                buf = self._buffer(size)
-                buf[: len(carry)] = carry
+    def _produce(self) -> Generator[tuple[int, np.ndarray, bool, bool, bytearray], None, None]:
+        carry = self.first
+        base = self.base
+        size = max(BUFFER_BYTES, 2 * len(carry))
+        while not self.stop.is_set():
+            buf = self._buffer(size)
+            buf[: len(carry)] = carry
+            mv = memoryview(buf)
+            fill = self._fill(mv, len(carry))
+            eof = fill < size
+            end = _cut(buf, fill, self.groups)
+            while end < 0 and not eof:
+                # no complete event yet: grow the buffer
+                size *= 2
+                bigger = bytearray(size)
+                bigger[:fill] = buf[:fill]
+                buf = bigger
                 mv = memoryview(buf)
-                fill = self._fill(mv, len(carry))
+                fill = self._fill(mv, fill)
                 eof = fill < size
                 end = _cut(buf, fill, self.groups)
-                while end < 0 and not eof:
-                    # no complete event yet: grow the buffer
-                    size *= 2
-                    bigger = bytearray(size)
-                    bigger[:fill] = buf[:fill]
-                    buf = bigger
-                    mv = memoryview(buf)
-                    fill = self._fill(mv, fill)
-                    eof = fill < size
-                    end = _cut(buf, fill, self.groups)
-                if eof or end < 0:
-                    end = fill
-                carry = bytes(buf[end:fill])
-                del mv
-                arr = np.frombuffer(buf, dtype=np.uint8, count=end)
-                final = eof or (self.stop_at is not None and base + end >= self.stop_at)
-                self._put((base, arr, final, eof, buf))
-                base += end
-                if final:
-                    break
+            if eof or end < 0:
+                end = fill
+            carry = bytes(buf[end:fill])
+            del mv
+            arr = np.frombuffer(buf, dtype=np.uint8, count=end)
+            final = eof or (self.stop_at is not None and base + end >= self.stop_at)
+            yield (base, arr, final, eof, buf)
+            base += end
+            if final:
+                return
+
+    def _run(self) -> None:
+        try:
+            for item in self.items:
+                self._put(item)
         except BaseException as exc:  # handed to the consumer
             self._put(exc)
 
@@ -537,6 +548,8 @@ class _Reader:
                 continue
 
     def get(self) -> tuple[int, np.ndarray, bool, bool, bytearray]:
+        if self.thread is None:
+            return next(self.items)
         item = self.q.get()
         if isinstance(item, BaseException):
             raise item
@@ -547,8 +560,25 @@ class _Reader:
 
     def close(self) -> None:
         self.stop.set()
-        self.thread.join(timeout=5)
+        if self.thread is not None:
+            self.thread.join(timeout=5)
+        else:
+            self.items.close()
         self.stream.close()
+
+
+class _Done:
+    """A finished computation with the interface of a ``Future`` (for inline parsing)."""
+
+    def __init__(self, fn: Callable[..., _Scratch], *args: Any) -> None:
+        self.fn = fn
+        self.args = args
+
+    def result(self) -> _Scratch:
+        return self.fn(*self.args)
+
+    def cancel(self) -> bool:
+        return True
 
 
 # ------------------------------------------------------------------ byte ranges
@@ -671,7 +701,9 @@ def read_lhe(
     finish one (and the chunks carry a ``group`` field, see the module docstring).
     ``source`` is a path to a plain, gzip (multi-member too), zstd, bz2 or xz file
     (detected by magic bytes). ``threads`` is the number of parse threads (default: 2
-    on a machine with >= 2 cores; a separate thread always reads and decompresses).
+    on a machine with >= 2 cores), beside which a thread reads and decompresses;
+    ``threads=0`` does everything in the caller's thread, for one core per reader (as in
+    a run with one worker process per core).
 
     ``byte_range=(start, stop)`` (plain files only) reads exactly the events whose
     ``<event`` tag (or enclosing ``<eventgroup`` tag) starts at a byte offset in
@@ -699,7 +731,10 @@ def read_lhe(
                 f"{kind}-compressed"
             )
         byte_range = (start, stop)
-    return _iterate(source, int(step_size), strict, threads or _default_threads(), byte_range)
+    nthreads = _default_threads() if threads is None else int(threads)
+    if nthreads < 0:
+        raise ValueError(f"threads must be >= 0, got {threads}")
+    return _iterate(source, int(step_size), strict, nthreads, byte_range)
 
 
 def _open_events(
@@ -750,7 +785,7 @@ def _iterate(
     if stop is not None and begin >= stop:
         stream.close()
         return
-    reader = _Reader(stream, first, begin, stop, groups, name, nbuf=1)
+    reader = _Reader(stream, first, begin, stop, groups, name, nbuf=1, threaded=threads > 0)
     free: list[_Scratch] = []
     slabs = _SlabPool()
 
@@ -761,8 +796,16 @@ def _iterate(
     def scratch() -> _Scratch:
         return free.pop() if free else _Scratch(nw, names)
 
-    pool = ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-lhe-parse")
-    pending: deque[tuple[tuple[int, np.ndarray, bool, bool, bytearray], Future[_Scratch]]]
+    pool = (ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-lhe-parse")
+            if threads > 0 else None)
+
+    def submit(s: _Scratch, base: int, arr: np.ndarray) -> Future[_Scratch] | _Done:
+        if pool is None:  # parse when the result is asked for, in this thread
+            return _Done(work, s, base, arr)
+        return pool.submit(work, s, base, arr)
+
+    pending: deque[tuple[tuple[int, np.ndarray, bool, bool, bytearray],
+                         Future[_Scratch] | _Done]]
     pending = deque()
     chunk: _Chunk | None = None
     per_event = 16.0  # particles per event (upper estimate), refined while reading
@@ -778,7 +821,7 @@ def _iterate(
         while True:
             while not reader_done and len(pending) < threads + 1:
                 item = reader.get()
-                pending.append((item, pool.submit(work, scratch(), item[0], item[1])))
+                pending.append((item, submit(scratch(), item[0], item[1])))
                 reader_done = item[2]
             if not pending:
                 break
@@ -859,7 +902,8 @@ def _iterate(
         reader.close()
         for _, fut in pending:
             fut.cancel()
-        pool.shutdown(wait=True)
+        if pool is not None:
+            pool.shutdown(wait=True)
 
 
 def _problem(msg: str, strict: bool) -> None:
