@@ -7,12 +7,13 @@ The input is a big toy tt̄ file (toy data). By default the gzipped 200k-event f
 that it can be split into byte-range work units; ``--copies K`` lists it K times.
 
 A. End to end: ``evtkin run`` in a fresh process (imports, pool or cluster start-up, JSON
-   output) with ``--jobs 1``, ``--jobs N`` and ``--dask local --jobs N``, after one tiny
-   untimed run (so that no timed run recompiles numba kernels).
-B. In this process after a warm-up, the run phase only: ``--jobs 1`` (the reader's own
-   parse threads), ``--jobs N`` with a cold forkserver (it imports evtkin and loads the
-   compiled kernels), again with the forkserver warm (start-up amortised, as in a long
-   run), and a Dask ``LocalCluster`` of N single-threaded workers.
+   output) with ``--jobs 1`` (one core), ``--jobs N`` and ``--dask local --jobs N``, after
+   one tiny untimed run (so that no timed run recompiles numba kernels).
+B. In this process after a warm-up, the run phase only: ``--jobs 1`` (one core: the reader
+   parses in the analysis thread), ``--jobs N`` with a cold forkserver (it imports evtkin
+   and loads the compiled kernels), again with the forkserver warm (start-up amortised, as
+   in a long run), a Dask ``LocalCluster`` of N single-threaded workers, and, for
+   reference, one process whose reader parses in 2 threads of its own.
 
 "cores busy" is the CPU time of the workers (all their threads) over the wall time: one
 process already keeps more than one core busy, because the LHE reader parses in its own
@@ -143,11 +144,14 @@ def main() -> int:
     # warm-up: imports and numba caches, on a small prefix
     run(cfg, max_events=2000)
 
-    runs = [("--jobs 1", lambda: SerialExecutor()),
+    runs = [("--jobs 1 (one core)", lambda: SerialExecutor(read_threads=0)),
             (f"--jobs {n} (cold start)", lambda: ProcessExecutor(n)),
             (f"--jobs {n} (warm forkserver)", lambda: ProcessExecutor(n))]
     if not args.skip_dask:
         runs.append((f"--dask local ({n} workers)", lambda: DaskExecutor("local", n_workers=n)))
+    # for reference: one process whose LHE reader parses in 2 threads (the default of
+    # evtkin.run() and of a small input without --jobs)
+    runs.append(("one process, 2 parse threads", lambda: SerialExecutor()))
     load0 = os.getloadavg()
     results = {}
     cpu_total: dict[str, float] = {}
@@ -177,12 +181,14 @@ def main() -> int:
               "(target >= 1.7 for 2 workers)")
     # load-independent view: the CPU time of the busiest worker is the wall time the run
     # would take with a free core per worker (start-up and memory-bandwidth effects aside)
-    for k in (2, 3)[: len(labels) - 2]:
+    print(f"  speed-up {labels[2]} over {labels[-1]}: "
+          f"{results[labels[-1]][0] / results[labels[2]][0]:5.2f}x")
+    for k in (2, 3)[: len(labels) - 3]:
         print(f"  CPU-bound estimate {labels[k]}: one process {cpu_total[labels[0]]:.1f} CPU-s, "
               f"busiest worker {cpu_worst[labels[k]]:.1f} CPU-s, all workers "
               f"{cpu_total[labels[k]]:.1f} CPU-s -> speed-up "
               f"{cpu_total[labels[0]] / cpu_worst[labels[k]]:4.2f}x with free cores")
-    if len(labels) > 3:
+    if len(labels) > 4:
         par = results[labels[1]][0]
         print(f"  {labels[3]} vs {labels[1]}: {par / results[labels[3]][0]:5.2f}x  "
               "(target >= 0.9)")

@@ -349,7 +349,11 @@ def test_cli_executor_choice():
     assert isinstance(big, ProcessExecutor)
     assert big.workers >= 1
     assert make_executor(jobs=3, input_bytes=10).workers == 3  # an explicit --jobs is kept
-    assert isinstance(make_executor(jobs=1, input_bytes=10**12), SerialExecutor)
+    one = make_executor(jobs=1, input_bytes=10**12)
+    assert isinstance(one, SerialExecutor)
+    assert one.read_threads == 0  # --jobs 1: one core, the reader parses in the run's thread
+    assert big.read_threads == 0  # a worker process per core, one thread each
+    assert make_executor(input_bytes=1000).read_threads is None  # small input: reader threads
     dask = make_executor(dask="local", jobs=2)
     assert isinstance(dask, DaskExecutor)
     assert dask.n_workers == 2

@@ -41,8 +41,9 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         "ranges of whole events) that run in parallel; the results do not depend on how.",
     )
     where.add_argument("--jobs", "-j", metavar="N", type=_positive,
-                       help="local worker processes (default: every available core); with "
-                       "--dask local, the number of Dask workers")
+                       help="cores to use: N local worker processes of one thread each "
+                       "(default: every available core; --jobs 1 runs in this process on one "
+                       "core); with --dask local, the number of Dask workers")
     where.add_argument("--dask", metavar="ADDRESS",
                        help="run on a Dask cluster: a scheduler address (tcp://host:8786), a "
                        "scheduler.json file, or 'local' to start a local cluster for this run "
@@ -60,7 +61,6 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
 
 def main(args: argparse.Namespace) -> int:
     from evtkin.config import load_config
-    from evtkin.run.pipeline import run
 
     cfg = load_config(args.config)
     out = Path(args.out) if args.out else (cfg.output.directory
@@ -68,6 +68,11 @@ def main(args: argparse.Namespace) -> int:
     input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
                       if f.is_file())
     executor = make_executor(jobs=args.jobs, dask=args.dask, input_bytes=input_bytes)
+    prestart = getattr(executor, "prestart", None)
+    if prestart is not None:  # workers warm up while this process imports and plans
+        prestart()
+    from evtkin.run.pipeline import run
+
     restore = _terminate_like_interrupt()
     try:
         result = run(cfg, out=out, max_events=args.max_events, step_size=args.step_size,
@@ -121,14 +126,16 @@ SMALL_INPUT_BYTES = 32_000_000
 
 def make_executor(*, jobs: int | None = None, dask: str | None = None,
                   input_bytes: int | None = None) -> Any:
-    """The executor for ``--jobs``/``--dask``: one process for ``--jobs 1`` (or, without
-    ``--jobs``, for inputs under :data:`SMALL_INPUT_BYTES`), a local process pool otherwise
-    (default: every core), a Dask cluster with ``--dask``."""
+    """The executor for ``--jobs``/``--dask``: this process on one core for ``--jobs 1``;
+    without ``--jobs``, this process with the reader's parse threads for inputs under
+    :data:`SMALL_INPUT_BYTES`; a local process pool otherwise (default: every core); a Dask
+    cluster with ``--dask``."""
     from evtkin.run.executors import DaskExecutor, ProcessExecutor, SerialExecutor
 
     if dask:
         return DaskExecutor(dask, n_workers=jobs)
-    if jobs == 1 or (jobs is None and input_bytes is not None
-                     and input_bytes < SMALL_INPUT_BYTES):
-        return SerialExecutor()
+    if jobs == 1:
+        return SerialExecutor(read_threads=0)  # one core, as asked
+    if jobs is None and input_bytes is not None and input_bytes < SMALL_INPUT_BYTES:
+        return SerialExecutor()  # the reader's own threads use the other cores
     return ProcessExecutor(jobs)

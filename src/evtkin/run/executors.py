@@ -163,7 +163,11 @@ class _Base:
 
 
 class SerialExecutor(_Base):
-    """Process the units one after another in this process (progress per chunk)."""
+    """Process the units one after another in this process (progress per chunk).
+
+    ``read_threads``: parse threads of the LHE reader (default: its own, 2 on a multi-core
+    machine; 0 keeps the whole run on one core, as ``--jobs 1`` does).
+    """
 
     def __init__(self, read_threads: int | None = None) -> None:
         self.read_threads = read_threads
@@ -224,20 +228,36 @@ def _start_method() -> str:
     return "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
 
 
+#: modules the forkserver imports before it forks workers: evtkin, and the warm-up that loads
+#: the compiled kernels, so that every worker starts with them loaded
+_PRELOAD = ["evtkin.run.executors", "evtkin.run._warmup"]
+
+
 class ProcessExecutor(_Base):
     """Run units in ``jobs`` local worker processes (default: every available core).
 
-    Each worker reads with ``read_threads`` parse threads (default 1: the processes
-    already fill the cores). A run of a single unit stays in this process.
+    Each worker reads with ``read_threads`` parse threads (default 0: it reads, parses and
+    analyses in one thread, so ``jobs`` workers keep ``jobs`` cores busy, not more). A run
+    of a single unit stays in this process. :meth:`prestart` starts the forkserver early.
     """
 
-    def __init__(self, jobs: int | None = None, *, read_threads: int | None = 1,
+    def __init__(self, jobs: int | None = None, *, read_threads: int | None = 0,
                  start_method: str | None = None) -> None:
         self.workers = int(jobs) if jobs else available_cores()
         if self.workers < 1:
             raise ValueError(f"jobs must be >= 1, got {jobs}")
         self.read_threads = read_threads
         self.start_method = start_method or _start_method()
+
+    def prestart(self) -> None:
+        """Start the forkserver now, so that it imports evtkin and loads the kernels
+        (seconds) while this process still prepares the run; idempotent."""
+        if self.start_method != "forkserver" or self.workers == 1:
+            return
+        from multiprocessing import forkserver
+
+        mp.get_context("forkserver").set_forkserver_preload(_PRELOAD)
+        forkserver.ensure_running()
 
     def describe(self) -> dict[str, Any]:
         return {"kind": "processes", "workers": self.workers, "start_method": self.start_method}
@@ -250,9 +270,7 @@ class ProcessExecutor(_Base):
         from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
         ctx = mp.get_context(self.start_method)
-        if self.start_method == "forkserver":
-            # import evtkin and load the compiled kernels once, in the forkserver
-            ctx.set_forkserver_preload(["evtkin.run.executors", "evtkin.run._warmup"])
+        self.prestart()  # import evtkin and load the compiled kernels once, in the forkserver
         q = ctx.Queue() if progress is not None else None
         stop = threading.Event()
         drain = None
@@ -332,7 +350,7 @@ class DaskExecutor(_Base):
     """
 
     def __init__(self, address: str = "local", *, n_workers: int | None = None,
-                 read_threads: int | None = 1, timeout: float = 30.0) -> None:
+                 read_threads: int | None = 0, timeout: float = 30.0) -> None:
         self.address = address
         self.n_workers = n_workers or available_cores()
         self.read_threads = read_threads
