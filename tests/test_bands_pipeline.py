@@ -210,3 +210,30 @@ def test_unknown_id_and_bad_recipes_are_config_errors(lhe, tmp_path) -> None:  #
                 'ids = ["h0", "h1", "h2"]\n')
     with pytest.raises(ConfigError, match=r"pairs"):
         run(cfg)
+
+
+def test_shape_bands_normalise_each_variation_and_reach_shape_only_comparisons(
+    lhe, tmp_path
+) -> None:  # type: ignore[no-untyped-def]
+    from evtkin.compare import compare_histograms
+    from evtkin.output.compare_plots import hist_to_data
+
+    out = tmp_path / "shape"
+    res = run(config([lhe], uncertainties={"scale": RECIPES["scale"], "pdf": RECIPES["pdf"]}),
+              out=out)
+    s = res.samples["s"]
+    hand = _hand(unit_area=True)  # each variation divided by its own total (REFERENCES §2.11)
+    for name in ("scale", "pdf"):
+        sb = s.shape_bands["h"][name]
+        assert sb.down[1:4] == pytest.approx(hand[name][0], rel=1e-9, abs=1e-15)
+        assert sb.up[1:4] == pytest.approx(hand[name][1], rel=1e-9, abs=1e-15)
+    h = load_results(out).samples["s"].histograms["h"]
+    assert h.shape_bands["scale"].up[1:4] == pytest.approx(hand["scale"][1], rel=1e-9)
+    a, _factor, _notes = hist_to_data(h, "s")
+    cmp = compare_histograms(a, a, shape_only=True, name="h")
+    # the comparison draws the shape band of the first band (no "total" here: "scale")
+    assert cmp.band_up[1:4] == pytest.approx(hand["scale"][1], rel=1e-9)
+    assert cmp.band_down[1:4] == pytest.approx(hand["scale"][0], rel=1e-9)
+    # scaling the cross-section band by the nominal total would be a different band
+    x0 = h.values.sum()
+    assert not np.allclose(h.bands["scale"].up[1:4] / x0, hand["scale"][1], rtol=1e-6)

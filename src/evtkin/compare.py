@@ -450,7 +450,11 @@ def kolmogorov_distance(w1: ArrayLike, s1: ArrayLike, w2: ArrayLike, s2: ArrayLi
 @dataclass
 class HistData:
     """A 1-D histogram as plain arrays: ``edges`` (n+1), ``values``/``variances`` (n, or n+2 with
-    ``flow=True``: index 0 underflow, n+1 overflow), optional absolute band edges, same shape."""
+    ``flow=True``: index 0 underflow, n+1 overflow), optional absolute band edges, same shape.
+
+    ``shape_band_down``/``shape_band_up``: optionally, the band of the unit-area shape (absolute
+    edges in fractions per stored bin, each variation normalised to its own total), which a
+    shape-only comparison uses; without it the band is scaled by the nominal total."""
 
     edges: FArray
     values: FArray
@@ -461,6 +465,8 @@ class HistData:
     name: str = ""
     label: str = ""
     meta: dict[str, Any] = field(default_factory=dict)
+    shape_band_down: FArray | None = None
+    shape_band_up: FArray | None = None
 
     def __post_init__(self) -> None:
         self.edges = _arr(self.edges, "edges")
@@ -473,7 +479,7 @@ class HistData:
                 f"histogram {self.name!r}: {len(self.edges)} edges need {want} values and "
                 f"variances (flow={self.flow}), got {len(self.values)} and {len(self.variances)}"
             )
-        for attr in ("band_down", "band_up"):
+        for attr in ("band_down", "band_up", "shape_band_down", "shape_band_up"):
             b = getattr(self, attr)
             if b is not None:
                 b = _arr(b, attr)
@@ -629,8 +635,12 @@ def compare_histograms(
         total_a = float(va.sum())
         va, sa = unit_area(va, sa)
         vb, sb = unit_area(vb, sb)
-        if band_dn is not None and band_up is not None:
+        if a.shape_band_down is not None and a.shape_band_up is not None:
+            band_dn, band_up = a.shape_band_down, a.shape_band_up
+            notes.append("band of the shape: each variation normalised to its own total")
+        elif band_dn is not None and band_up is not None:
             band_dn, band_up = band_dn / total_a, band_up / total_a
+            notes.append("band scaled by the nominal total (variation shapes not available)")
         notes.append("shape-only: both normalised to unit area over all stored bins")
     r, rerr = ratio(vb, sb, va, sa)
     band = None

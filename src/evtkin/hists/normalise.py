@@ -24,7 +24,7 @@ import numpy as np
 
 from evtkin.hists.fill import HistAccumulator, HistSpec
 
-__all__ = ["MODES", "NormalisedHist", "bin_volumes", "normalise", "unit_area"]
+__all__ = ["MODES", "NormalisedHist", "bin_volumes", "normalise", "shape_fractions", "unit_area"]
 
 Mode = Literal["raw", "xsec_per_bin", "events", "unit_area"]
 MODES: tuple[str, ...] = ("raw", "xsec_per_bin", "events", "unit_area")
@@ -137,3 +137,21 @@ def normalise(
         return NormalisedHist(spec, acc.variations, vals, vars_, "unit_area", "",
                               "fraction per bin", acc.entries, include_flow)
     raise ValueError(f"unknown normalisation {mode!r}; expected one of {', '.join(MODES)}")
+
+
+def shape_fractions(nh: NormalisedHist) -> np.ndarray | None:
+    """The shape a unit-area comparison sees, for the nominal and every variation: each row of
+    ``nh.values`` as the fraction of its own total in each stored bin (flow bins included;
+    for ``xsec_per_bin`` the per-bin quantity value x width; for ``unit_area`` without flow,
+    the flow bins left out). Bands formed from these rows normalise each variation on its own,
+    as :func:`normalise` does for ``unit_area``. ``None`` for 2-D histograms."""
+    if nh.spec.ndim != 1:
+        return None
+    per_bin = np.array(nh.values, dtype=np.float64)
+    if nh.normalisation == "xsec_per_bin":
+        per_bin[:, 1:-1] *= nh.spec.axes[0].widths
+    elif nh.normalisation == "unit_area" and not nh.norm_includes_flow:
+        per_bin[:, 0] = per_bin[:, -1] = 0.0
+    total = per_bin.sum(axis=1, keepdims=True)
+    safe = np.where(total != 0.0, total, 1.0)
+    return np.where(total != 0.0, per_bin / safe, 0.0)  # type: ignore[no-any-return]

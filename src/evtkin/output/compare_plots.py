@@ -169,14 +169,17 @@ def hist_to_data(hr: Any, label: str) -> tuple[HistData, np.ndarray, list[str]]:
             note = (note + "; " if note else "") + "unit area without flow: flow bins left out"
         if note:
             notes.append(note)
+    shape = _pick_band(hr, "shape_bands")
     hd = HistData(
-        edges, vals, var, band_down=down, band_up=up, flow=True, name=hr.name, label=label
+        edges, vals, var, band_down=down, band_up=up, flow=True, name=hr.name, label=label,
+        shape_band_down=None if shape is None else np.asarray(shape.down, dtype=np.float64),
+        shape_band_up=None if shape is None else np.asarray(shape.up, dtype=np.float64),
     )
     return hd, factor, notes
 
 
-def _pick_band(hr: Any) -> Any:
-    bands = getattr(hr, "bands", None) or {}
+def _pick_band(hr: Any, key: str = "bands") -> Any:
+    bands = getattr(hr, key, None) or {}
     if not bands:
         return None
     return bands.get("total") or next(iter(bands.values()))

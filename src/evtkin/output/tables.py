@@ -93,6 +93,9 @@ class HistResult:
     bands: dict[str, Band] = field(default_factory=dict)
     norm_includes_flow: bool = True
     variation_values: dict[str, np.ndarray] | None = None
+    #: 1-D: the bands as fractions of unit area per stored bin, each variation normalised on
+    #: its own (see evtkin.hists.normalise.shape_fractions); used by shape-only comparisons
+    shape_bands: dict[str, Band] = field(default_factory=dict)
 
     @property
     def ndim(self) -> int:
@@ -132,6 +135,9 @@ class HistResult:
                       for k, b in self.bands.items()},
             "variation_values": None if self.variation_values is None else {
                 k: _jlist(v) for k, v in self.variation_values.items()},
+            "shape_bands": {k: {"method": b.method, "members": list(b.members),
+                                "down": _jlist(b.down), "up": _jlist(b.up)}
+                            for k, b in self.shape_bands.items()},
         }
 
 
@@ -153,7 +159,8 @@ class Results:
 
 
 def hist_result(
-    norm: NormalisedHist, bands: Mapping[str, Band] | None = None, *, keep_variations: bool = False
+    norm: NormalisedHist, bands: Mapping[str, Band] | None = None, *, keep_variations: bool = False,
+    shape_bands: Mapping[str, Band] | None = None,
 ) -> HistResult:
     """Build the plain :class:`HistResult` from normalised contents (nominal row) and bands."""
     axes = [AxisInfo(a.name, a.label, a.unit, a.kind, a.edges_array.copy()) for a in norm.spec.axes]
@@ -166,6 +173,7 @@ def hist_result(
         entries=int(norm.entries), values=norm.values[0].copy(),
         variances=norm.variances[0].copy(), bands=dict(bands or {}),
         norm_includes_flow=norm.norm_includes_flow, variation_values=var_vals,
+        shape_bands=dict(shape_bands or {}),
     )
 
 
@@ -442,11 +450,8 @@ def _read_hist(name: str, d: Mapping[str, Any], where: str) -> HistResult:
         if arr.shape != shape:
             raise ResultsError(
                 f"{where}.{what}: expected shape {shape} (flow bins included), got {arr.shape}")
-    bands = {}
-    for bname, b in (d.get("bands") or {}).items():
-        bw = f"{where}.bands.{bname}"
-        bands[bname] = Band(str(b.get("method", "")), _arr(_need(b, "down", bw), bw + ".down"),
-                            _arr(_need(b, "up", bw), bw + ".up"), list(b.get("members", [])))
+    bands = _load_bands(d, "bands", where)
+    shape_bands = _load_bands(d, "shape_bands", where)
     vv = d.get("variation_values")
     return HistResult(
         name=name, title=str(d.get("title", name)), axes=axes,
@@ -456,7 +461,17 @@ def _read_hist(name: str, d: Mapping[str, Any], where: str) -> HistResult:
         norm_includes_flow=bool(d.get("norm_includes_flow", True)),
         variation_values=None if vv is None else {
             k: _arr(v, f"{where}.variation_values.{k}") for k, v in vv.items()},
+        shape_bands=shape_bands,
     )
+
+
+def _load_bands(d: Mapping[str, Any], key: str, where: str) -> dict[str, Band]:
+    bands = {}
+    for bname, b in (d.get(key) or {}).items():
+        bw = f"{where}.{key}.{bname}"
+        bands[bname] = Band(str(b.get("method", "")), _arr(_need(b, "down", bw), bw + ".down"),
+                            _arr(_need(b, "up", bw), bw + ".up"), list(b.get("members", [])))
+    return bands
 
 
 def load_results(folder: str | os.PathLike[str]) -> Results:

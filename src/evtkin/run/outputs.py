@@ -36,7 +36,8 @@ def to_results(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> t
             luminosity_fb=s.luminosity_fb,
             xsec=s.xsec.to_dict() if s.xsec is not None else {},
             variations=list(s.variations),
-            histograms={h: tables.hist_result(nh, getattr(s, "bands", {}).get(h))
+            histograms={h: tables.hist_result(nh, getattr(s, "bands", {}).get(h),
+                                              shape_bands=getattr(s, "shape_bands", {}).get(h))
                         for h, nh in s.histograms.items()},
             cutflow=list(s.cutflow) if with_cutflow else [],
         )

@@ -52,6 +52,9 @@ class SampleResult:
     n_events: int
     #: per histogram: uncertainty bands (name → Band) from the resolved recipes
     bands: dict[str, dict[str, Any]] = field(default_factory=dict)
+    #: per 1-D histogram: the same bands formed from unit-area shapes, each variation
+    #: normalised on its own (what a shape-only comparison draws)
+    shape_bands: dict[str, dict[str, Any]] = field(default_factory=dict)
     #: the recipes applied to this sample and notes on how they were resolved
     recipes: list[Any] = field(default_factory=list)
     uncertainty_notes: list[str] = field(default_factory=list)
@@ -191,12 +194,19 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
             "eff_step": float(sum_w[k] / prev) if prev else math.nan,
             "eff_cum": float(sum_w[k] / sum_w[0]) if sum_w[0] else math.nan,
         })
+    from evtkin.hists.normalise import shape_fractions
     from evtkin.hists.recipes import bands_for, resolve_recipes
 
     recipes, notes = resolve_recipes(plan.config, name, variations, [r.info for r in records])
     bands = {h: bands_for(nh.values, recipes) for h, nh in normalised.items()} if recipes else {}
+    shape_bands = {}
+    for h, nh in normalised.items():
+        frac = shape_fractions(nh) if recipes else None
+        if frac is not None:
+            shape_bands[h] = bands_for(frac, recipes)
     return SampleResult(name, spec.label, spec.luminosity_fb, spec.toy, xsec, variations,
-                        normalised, weighted, cutflow, n_events, bands, recipes, notes)
+                        normalised, weighted, cutflow, n_events, bands, shape_bands, recipes,
+                        notes)
 
 
 def finalise(plan: Plan, partial: PartialResult) -> dict[str, SampleResult]:
