@@ -15,7 +15,6 @@ units; so is every file when ``max_events`` limits the events read per file.
 
 from __future__ import annotations
 
-import hashlib
 import itertools
 import math
 import os
@@ -30,6 +29,7 @@ import numpy as np
 
 from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator, fill_many
+from evtkin.run.checksums import sha256_of
 from evtkin.run.partial import Cutflow, FileRecord, PartialResult, ProcessTotals
 from evtkin.run.plan import Plan, analyse_chunk, hist_entries
 
@@ -238,15 +238,6 @@ def make_units(plan: Plan, *, workers: int = 1, unit_bytes: int | None = None
             units.append(WorkUnit(name, i, path, 0, plan.max_events, size=size, format=fmt,
                                   index=len(units)))
     return units
-
-
-def sha256_of(path: str | os.PathLike[str], block: int = 1 << 23) -> str:
-    """SHA-256 of a file's bytes as stored (compressed files are hashed compressed)."""
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        while chunk := f.read(block):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 def _lhe_reader(unit: WorkUnit, step_size: int, threads: int | None) -> Iterator[Any]:
