@@ -1,7 +1,7 @@
 """Benchmark of the LHE reader against a bare line scan of the same file, in one run.
 
     python bench/make_big_lhe.py --gzip          # once: /tmp/evtkin_bench.lhe(.gz)
-    python bench/bench_lhe.py [--file /tmp/evtkin_bench.lhe] [--repeat 3]
+    python bench/bench_lhe.py [--file /tmp/evtkin_bench.lhe] [--repeat 3] [--big]
 
 Prints MB/s (of uncompressed text) and the ratio to a bare ``for line in open(path, "rb")``
 scan measured in the same run: uncompressed with 1 and 2 parse threads, gzip, the raw
@@ -73,6 +73,23 @@ def make_tiny(path: str) -> str:
     return TINY
 
 
+def make_big(path: str, copies: int) -> str:
+    """``path`` with its events repeated ``copies`` times (made once, next to it in /tmp)."""
+    out = os.path.join(tempfile.gettempdir(), f"evtkin_bench_x{copies}.lhe")
+    if os.path.exists(out) and os.path.getmtime(out) >= os.path.getmtime(path):
+        return out
+    data = Path(path).read_bytes()
+    first = data.index(b"<event")
+    last = data.rindex(b"</event>") + len(b"</event>\n")
+    with open(out + ".part", "wb") as fh:
+        fh.write(data[:first])
+        for _ in range(copies):
+            fh.write(data[first:last])
+        fh.write(data[last:])
+    os.replace(out + ".part", out)
+    return out
+
+
 def run(mode: str, path: str, threads: int = 1, env: dict | None = None) -> dict:
     out = subprocess.run(
         [sys.executable, "-c", CHILD, mode, path, str(threads), TINY],
@@ -111,6 +128,9 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--file", default="/tmp/evtkin_bench.lhe")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--big", action="store_true",
+                    help="also read a ~10x larger file (the events repeated, made once in /tmp) "
+                    "to show that peak memory does not grow with the file size")
     args = ap.parse_args()
     path = args.file
     gz = path + ".gz"
@@ -121,6 +141,7 @@ def main() -> None:
 
     cases = [
         ("bare line scan (baseline)", "bare", path, 1),
+        ("read_lhe plain, all in one thread", "read", path, 0),
         ("read_lhe plain, 1 parse thread", "read", path, 1),
         ("read_lhe plain, 2 parse threads", "read", path, 2),
     ]
@@ -146,6 +167,14 @@ def main() -> None:
             f"{r['rss_mb']:12.0f} {r['n']:8d}  {runs_s}"
         )
     print(f"load average after: {os.getloadavg()}")
+    if args.big:
+        big = make_big(path, 10)
+        big_mb = Path(big).stat().st_size / 1e6
+        for threads in (1, 2):
+            r = run("read", big, threads)
+            print(f"{big_mb:.0f} MB file, {threads} parse thread(s): {r['seconds']:.2f} s, "
+                  f"{big_mb / r['seconds']:.0f} MB/s, {r['n']} events, "
+                  f"peak RSS {r['rss_mb']:.0f} MB")
 
     with tempfile.TemporaryDirectory() as tmp:
         tiny = os.path.join(tmp, "tiny.lhe")
