@@ -1,17 +1,28 @@
 """Compiled byte scanner for the ``<event>`` part of LHE files (numba, ``nogil``, cached).
 
-:func:`scan_kernel` is one single-pass state machine over a ``uint8`` buffer that holds
+:func:`scan_kernel_source` is one single-pass state machine over a ``uint8`` buffer that holds
 whole events (the reader cuts its buffers after an ``</event>``, or before an open
 ``<eventgroup>``). It writes straight into flat numeric columns (the caller's
 preallocated arrays), starting at the counts held in ``st`` and resuming at byte
 ``st[ST_POS]``; when a column is full it stops at the last commit point (an event, or a
 whole event group) so that the caller can grow the arrays and call again.
 
-The fixed-layout lines have dedicated paths: the event line is ``NUP IDPRUP`` (integers)
-then ``XWGTUP SCALUP AQEDUP AQCDUP`` (floats), a particle line six integers then seven
-floats. Numbers go straight into their output column; there is no token scratch space,
-no array-taking helper and no slow-path call in the loop (PERFORMANCE-NOTES: each of
-those put reference counting or a rarely taken call into the hot loop).
+Every number of an event goes through one "number run" loop: the event line (``NUP
+IDPRUP`` integers, then ``XWGTUP SCALUP AQEDUP AQCDUP``), a particle line (six integers,
+then seven floats), a ``<weights>`` list and the value of a ``<wgt>`` tag. There is one
+copy of the float parser, numbers go straight into their output column (through flat
+views, one index computation per store), and the hot loop holds no token scratch space,
+no array-taking call and no slow-path call (PERFORMANCE-NOTES: each of those put
+reference counting or a rarely taken call into the hot loop). Speed comes from what the
+loop does not do: byte classes are one lookup in a 256-entry table (``_CC``) instead of
+chains of comparisons, and indices are cast to unsigned where they are used, so that
+numba emits no negative-index wrap-around code. ``<wgt id='..'>`` tags whose id is the
+declared id expected next are recognised by a direct byte comparison; any other tag
+(and ids out of order) takes the general path.
+
+Tags, comments and unknown elements (a few per event) are scanned by small helpers
+(:func:`_tag_scan`, :func:`_find_weight`, :func:`_skip_element`), compiled with the
+kernel; keeping them out of the kernel's body makes it (and its compile time) smaller.
 
 Floats are bit-identical to Python's ``float()`` on the same text: a decimal mantissa of
 at most 18 digits that is <= 2**53, with a decimal exponent within +-22, is converted
@@ -33,7 +44,7 @@ the exact message on the Python side (errors are rare, so their analysis need no
 compiled).
 
 Importing this module does not import numba: :func:`compiled_kernel` compiles (or loads
-from the cache) on first use.
+from the cache) on first use, for the argument types the reader passes.
 """
 
 from __future__ import annotations
@@ -121,8 +132,146 @@ T_WTS = 20
 
 _P10 = np.array([10.0**k for k in range(23)], dtype=np.float64)  # all exact in binary64
 _TWO53 = 1 << 53
-_INT32_MAX = 2147483647
-_INT32_MIN = -2147483648
+_I32_MAX = 2147483647
+_I32_MIN = -2147483648
+U = np.uint64  # index cast: unsigned indices need no wrap-around code
+_DOT48 = np.uint64(46 - 48 + (1 << 64))  # '.' - '0' as an unsigned byte difference
+# tag names packed big-endian into an int (their first 8 bytes)
+_K_EVENT = int.from_bytes(b"event", "big")
+_K_EVENTGRO = int.from_bytes(b"eventgro", "big")
+_K_RWGT = int.from_bytes(b"rwgt", "big")
+_K_WEIGHTS = int.from_bytes(b"weights", "big")
+_K_WGT = int.from_bytes(b"wgt", "big")
+
+# byte classes (bit flags), looked up in _CC: one table load instead of a chain of tests
+C_BLANK = 1  # space, tab, CR
+C_LF = 2  # newline
+C_SPACE = C_BLANK | C_LF
+C_TOKEN_END = 4  # what may follow a number: blank, newline or '<'
+C_LINE_END = 8  # newline, '<' or '#'
+C_NAME_END = 16  # end of a tag name: blank, newline, '>' or '/'
+C_EXP = 32  # exponent letters e E d D
+C_HSPACE = 64  # space, tab
+C_NUM_START = 128  # + - . and digits
+
+
+def _byte_classes() -> np.ndarray:
+    cc = np.zeros(256, dtype=np.uint8)
+    members = {
+        C_BLANK: b" \t\r",
+        C_LF: b"\n",
+        C_TOKEN_END: b" \t\r\n<",
+        C_LINE_END: b"\n<#",
+        C_NAME_END: b" \t\r\n>/",
+        C_EXP: b"eEdD",
+        C_HSPACE: b" \t",
+        C_NUM_START: b"+-.0123456789",
+    }
+    for flag, chars in members.items():
+        for ch in chars:
+            cc[ch] |= flag
+    return cc
+
+
+_CC = _byte_classes()
+
+
+# ------------------------------------------------------------------ cold-path helpers
+# Compiled with the kernel (see compiled_kernel); called once per tag, never per number.
+
+
+def _tag_scan(buf, pos, n):  # uint8[:], int, int -> (int, int, int, int)
+    """Scan the tag (or comment) starting with the ``<`` at ``buf[pos]``.
+
+    Returns ``(ne, gt, wid_s, wid_e)``: the end of the tag name (-1 for a comment
+    ``<!-- -->``), the position of the closing ``>`` (>= n when the buffer ends first)
+    and the span of the value of an ``id=`` attribute (-1 if none). Quoted attribute
+    values may hold ``>``.
+    """
+    if pos + 3 < n and buf[U(pos + 1)] == 33 and buf[U(pos + 2)] == 45 and buf[U(pos + 3)] == 45:
+        p = pos + 4
+        while p + 2 < n and not (buf[U(p)] == 45 and buf[U(p + 1)] == 45 and buf[U(p + 2)] == 62):
+            p += 1
+        return -1, p + 2, -1, -1
+    ns = pos + 2 if pos + 1 < n and buf[U(pos + 1)] == 47 else pos + 1
+    ne = ns
+    while ne < n and not _CC[buf[U(ne)]] & C_NAME_END:
+        ne += 1
+    q = 0
+    gt = ne
+    wid_s = -1
+    wid_e = -1
+    while gt < n:
+        c = buf[U(gt)]
+        if q != 0:
+            if c == q:
+                q = 0
+                if wid_s >= 0 and wid_e < 0:
+                    wid_e = gt
+        elif c == 34 or c == 39:
+            q = c
+            # an attribute value starts; is it id=?
+            b = gt - 1
+            while b > ne and _CC[buf[U(b)]] & C_HSPACE:
+                b -= 1
+            if buf[U(b)] == 61:  # '='
+                b -= 1
+                while b > ne and _CC[buf[U(b)]] & C_HSPACE:
+                    b -= 1
+                if (
+                    b - 2 >= ne
+                    and buf[U(b)] == 100
+                    and buf[U(b - 1)] == 105
+                    and _CC[buf[U(b - 2)]] & (C_HSPACE | C_LF)
+                ):
+                    wid_s = gt + 1
+        elif c == 62:
+            break
+        gt += 1
+    return ne, gt, wid_s, wid_e
+
+
+def _find_weight(buf, wid_s, wid_e, wid_bytes, wid_off, wnext, nw):
+    """Column of the declared weight id ``buf[wid_s:wid_e]`` (column ``wnext`` is tried
+    first, then all in order), or -1."""
+    if wid_s < 0 or wid_e < wid_s:
+        return -1
+    L = wid_e - wid_s
+    for attempt in range(nw + 1):
+        j = wnext if attempt == 0 else attempt - 1
+        if j >= nw:
+            continue
+        o0 = wid_off[U(j)]
+        if wid_off[U(j + 1)] - o0 != L:
+            continue
+        same = True
+        for t in range(L):
+            if wid_bytes[U(o0 + t)] != buf[U(wid_s + t)]:
+                same = False
+                break
+        if same:
+            return j
+    return -1
+
+
+def _skip_element(buf, pos, n, ns, nlen):
+    """Position after the closing tag ``</name>`` of the element whose name is
+    ``buf[ns:ns + nlen]``, searched from ``pos``; -1 if the buffer ends first."""
+    while pos + nlen + 2 < n:
+        if buf[U(pos)] == 60 and buf[U(pos + 1)] == 47:
+            same = True
+            for t in range(nlen):
+                if buf[U(pos + 2 + t)] != buf[U(ns + t)]:
+                    same = False
+                    break
+            if same:
+                c = buf[U(pos + 2 + nlen)]
+                if c == 62 or _CC[c] & C_SPACE:
+                    while pos < n and buf[U(pos)] != 62:
+                        pos += 1
+                    return pos + 1
+        pos += 1
+    return -1
 
 
 def scan_kernel_source(  # one state machine on purpose (see module docstring)
@@ -139,11 +288,18 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
     slow,  # int64[:, 4]    (target, index, token start, token end)
     st,  # int64[16]        state in/out (see ST_*)
 ):
+    # Every index is cast to unsigned (U) where it is used: numba then emits no
+    # negative-index wrap-around (all indices here are >= 0 by construction).
     n = buf.shape[0]
     nw = wts.shape[1]
     ev_cap = ev_pid.shape[0]
     p_cap = p_i.shape[1]
     s_cap = slow.shape[0]
+    # flat views of the C-contiguous columns: one index computation per store
+    pif = p_i.reshape(-1)
+    pff = p_f.reshape(-1)
+    evff = ev_f.reshape(-1)
+    wtf = wts.reshape(-1)
     P10 = _P10
     nan = np.nan
 
@@ -165,23 +321,245 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
     in_group = False
     g_first = 0
 
-    # state: 0 between events, 1 event line, 2 particle line, 3 float run,
-    #        4 optional information, 5 inside <rwgt>
+    # state: 0 between events, 1 event line, 2 particle line, 3 number run,
+    #        4 optional information, 5 inside <rwgt>, 6 a <wgt> value follows,
+    #        7 a <weights> list follows
     state = 0
     nup = 0
     ip = 0
     row = 0
     line0 = 0
-    # float run: fmode 1 event line, 2 particle line, 3 <weights> list, 4 one <wgt>
-    fmode = 0
-    fi = 0
-    fn = 0
+    # number run: kind 1 event line, 2 particle line, 3 <weights> list, 4 one <wgt>;
+    # the k-th float goes to flat index dbase + k * dstride of the kind's column
+    kind = 0
+    dbase = 0
+    dstride = 0
     wcol = 0
     wnext = 0
     while True:
+        if state == 1 or state == 2:
+            # --------------------------- start of the event line or of a particle line
+            while pos < n and _CC[buf[U(pos)]] & C_SPACE:
+                pos += 1
+            if pos >= n:
+                status = ST_INCOMPLETE
+                break
+            line0 = pos
+            kind = state
+            if state == 1:
+                dbase = ev
+                dstride = ev_cap
+            else:
+                c = buf[U(pos)]
+                if c == 60 or c == 35:  # '<' or '#': fewer particle lines than NUP
+                    status = ERR_FEW_PARTICLES
+                    st[ST_ERRPOS] = pos
+                    st[ST_A] = nup
+                    st[ST_B] = ip
+                    break
+                row = npart + ip
+                dbase = row
+                dstride = p_cap
+            state = 3
+        elif state >= 6:
+            # the value of a <wgt> tag for weight column wcol (6), or a <weights> list (7)
+            if state == 6:
+                kind = 4
+                wnext = wcol + 1
+                dbase = ev * nw + wcol
+                dstride = 0
+            else:
+                kind = 3
+                dbase = ev * nw
+                dstride = 1
+            line0 = pos
+            state = 3
+
+        if state == 3:
+            # ------------------------------------------------------------ number run
+            # fields [0, ni) are integers (at most ilim digits), fn fields in all (-1: any)
+            fn = 6 if kind == 1 else 13 if kind == 2 else -1
+            ni = 2 if kind == 1 else 6 if kind == 2 else 0
+            ilim = 18 if kind == 1 else 10
+            blank = C_SPACE if kind >= 3 else C_BLANK  # <weights>/<wgt>: newlines too
+            iend = C_SPACE if kind == 1 else C_BLANK  # what may follow an integer
+            full = False
+            bad = False
+            fi = 0
+            while True:
+                while pos < n and _CC[buf[U(pos)]] & blank:
+                    pos += 1
+                if pos >= n:
+                    break
+                c = buf[U(pos)]
+                if _CC[c] & C_LINE_END or fi == fn:  # '\n' '<' '#', or too many
+                    break
+                # ---- one number token: sign, then digits with at most one '.'
+                s = pos
+                neg = c == 45
+                if neg or c == 43:
+                    pos += 1
+                mant = 0
+                s0 = pos
+                dot = -1
+                while pos < n:
+                    d = U(buf[U(pos)]) - U(48)
+                    if d <= U(9):
+                        mant = mant * 10 + np.int64(d)
+                    elif d == _DOT48 and dot < 0:
+                        dot = pos
+                    else:
+                        break
+                    pos += 1
+                nd = pos - s0  # digits, leading zeros included
+                if fi < ni:
+                    # -------- an integer field (event line: NUP IDPRUP; particle: 6)
+                    if dot >= 0:
+                        nd = 0
+                        pos = dot  # (where a pure integer scan stops)
+                    elif pos < n:
+                        c = buf[U(pos)]
+                        if not _CC[c] & iend:
+                            nd = 0
+                    if neg:
+                        mant = -mant
+                    if nd == 0 or nd > ilim or (kind == 2 and not _I32_MIN <= mant <= _I32_MAX):
+                        bad = True
+                        break
+                    if kind == 2:
+                        if fi == 2 or fi == 3:
+                            mant -= 1  # mothers: 0-based, -1 = none
+                        pif[U(fi * p_cap + row)] = mant
+                    elif fi == 0:
+                        nup = mant
+                    else:
+                        ev_pid[U(ev)] = mant
+                        if pos >= n:
+                            break  # the buffer ends here: incomplete before anything else
+                        if nup < 0:
+                            status = ERR_NEGATIVE_NUP
+                            break
+                        if npart + nup > p_cap:
+                            status = ST_FULL
+                            break
+                    fi += 1
+                    continue
+                # -------- a float field: exponent
+                e10 = 0
+                if dot >= 0:
+                    nd -= 1
+                    e10 = dot + 1 - pos  # minus the digits after the '.'
+                if pos < n:
+                    c = buf[U(pos)]
+                    if _CC[c] & C_EXP:  # e E d D
+                        pos += 1
+                        eneg = False
+                        if pos < n:
+                            c = buf[U(pos)]
+                            if c == 45:
+                                eneg = True
+                                pos += 1
+                            elif c == 43:
+                                pos += 1
+                        ex = 0
+                        x0 = pos
+                        while pos < n:
+                            d = U(buf[U(pos)]) - U(48)
+                            if d > U(9):
+                                break
+                            ex = ex * 10 + np.int64(d)
+                            pos += 1
+                        if pos == x0 or pos - x0 > 5:
+                            nd = 0  # no exponent digits, or a huge exponent: slow path
+                        e10 += -ex if eneg else ex
+                    if pos < n:
+                        c = buf[U(pos)]
+                        if not _CC[c] & C_TOKEN_END:
+                            nd = 0
+                k = fi - ni
+                fi += 1
+                if nd > 0 and nd <= 18 and mant <= _TWO53 and e10 >= -22 and e10 <= 22:
+                    v = np.float64(mant)
+                    # one correctly rounded operation with an exact power of ten
+                    v = v * P10[U(e10)] if e10 >= 0 else v / P10[U(-e10)]
+                    if neg:
+                        v = -v
+                    slow_token = False
+                else:
+                    # slow path: find the token's end, convert later in Python
+                    while pos < n and not _CC[buf[U(pos)]] & C_TOKEN_END:
+                        pos += 1
+                    v = nan
+                    slow_token = True
+                if kind == 3 and k >= nw:
+                    continue  # surplus <weights> values: counted, not stored
+                at = dbase + k * dstride
+                if kind == 2:
+                    pff[U(at)] = v
+                elif kind == 1:
+                    evff[U(at)] = v
+                else:
+                    wtf[U(at)] = v
+                if slow_token:
+                    if nslow >= s_cap:
+                        full = True
+                        break
+                    # (target column, index) for fix_slow_values
+                    slow[U(nslow), 0] = T_PF + k if kind == 2 else T_EVF + k if kind == 1 else T_WTS
+                    slow[U(nslow), 1] = at if kind >= 3 else dbase
+                    slow[U(nslow), 2] = s
+                    slow[U(nslow), 3] = pos
+                    nslow += 1
+            # ---- end of the run
+            if status == ERR_NEGATIVE_NUP:
+                st[ST_ERRPOS] = line0
+                break
+            if status == ST_FULL:
+                st[ST_A] = FULL_PARTICLES
+                break
+            if full:
+                status = ST_FULL
+                st[ST_A] = FULL_SLOW
+                break
+            if pos >= n:
+                status = ST_INCOMPLETE
+                break
+            if kind <= 2:
+                c = buf[U(pos)]
+                if bad or fi != fn or not _CC[c] & C_LINE_END:
+                    status = ERR_LINE
+                    st[ST_ERRPOS] = line0
+                    st[ST_B] = 6 if kind == 1 else 13
+                    break
+                if kind == 1:
+                    ip = 0
+                else:
+                    ip += 1
+                state = 2 if ip < nup else 4
+                continue
+            if kind == 3:
+                if fi != nw:
+                    status = ERR_WEIGHT_COUNT
+                    st[ST_ERRPOS] = pos
+                    st[ST_A] = fi
+                    st[ST_B] = nw
+                    break
+            elif fi != 1 or buf[U(pos)] != 60:
+                status = ERR_WGT_VALUE
+                st[ST_ERRPOS] = line0
+                st[ST_A] = fi
+                break
+            # skip the closing tag '</weights>' or '</wgt>'
+            while pos < n and buf[U(pos)] != 62:
+                pos += 1
+            pos += 1
+            state = 4 if kind == 3 else 5
+            continue
+
+        # ------------------------------------------ states 0, 4 and 5: markup
         if state == 0:
-            # ---------------------------------------------------- between events
-            while pos < n and buf[pos] != 60:  # '<'
+            # between events: everything but tags is ignored
+            while pos < n and buf[U(pos)] != 60:  # '<'
                 pos += 1
             if pos >= n:
                 if in_group:
@@ -190,57 +568,85 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     status = ST_OK
                     c_pos = n
                 break
-            t0 = pos
-            if pos + 3 < n and buf[pos + 1] == 33 and buf[pos + 2] == 45 and buf[pos + 3] == 45:
-                # comment: skip to '-->'
-                pos += 4
-                while pos + 2 < n and not (
-                    buf[pos] == 45 and buf[pos + 1] == 45 and buf[pos + 2] == 62
-                ):
-                    pos += 1
-                if pos + 2 >= n:
-                    status = ST_INCOMPLETE
-                    if not in_group:
-                        c_pos = t0
-                    break
-                pos += 3
-                continue
-            closing = pos + 1 < n and buf[pos + 1] == 47
-            ns = pos + 2 if closing else pos + 1
-            ne = ns
-            while ne < n:
-                c = buf[ne]
-                if c == 32 or c == 9 or c == 13 or c == 10 or c == 62 or c == 47:
-                    break
-                ne += 1
-            if ne >= n:
+        else:
+            while pos < n and _CC[buf[U(pos)]] & C_SPACE:
+                pos += 1
+            if pos >= n:
                 status = ST_INCOMPLETE
-                if not in_group:
+                break
+            c = buf[U(pos)]
+            if c == 60 and state == 5 and wnext < nw and pos + 12 < n:
+                # fast path for <wgt id='ID'> with the declared id expected next
+                q = buf[U(pos + 8)]
+                if (
+                    buf[U(pos + 1)] == 119  # w
+                    and buf[U(pos + 2)] == 103  # g
+                    and buf[U(pos + 3)] == 116  # t
+                    and buf[U(pos + 4)] == 32
+                    and buf[U(pos + 5)] == 105  # i
+                    and buf[U(pos + 6)] == 100  # d
+                    and buf[U(pos + 7)] == 61  # =
+                    and (q == 34 or q == 39)
+                ):
+                    o0 = wid_off[U(wnext)]
+                    L = wid_off[U(wnext + 1)] - o0
+                    e = pos + 9 + L
+                    if e + 1 < n and buf[U(e)] == q and buf[U(e + 1)] == 62:
+                        same = True
+                        for t in range(L):
+                            b = wid_bytes[U(o0 + t)]
+                            if b != buf[U(pos + 9 + t)] or b == q:
+                                same = False
+                                break
+                        if same:
+                            wcol = wnext
+                            pos = e + 2
+                            state = 6
+                            continue
+            if c == 35 and state == 4:  # '#' comment line
+                while pos < n and buf[U(pos)] != 10:
+                    pos += 1
+                continue
+            if c != 60:
+                if state == 4 and _CC[c] & C_NUM_START:
+                    status = ERR_MANY_PARTICLES
+                    st[ST_ERRPOS] = pos
+                    st[ST_A] = nup
+                    break
+                # free text: skip the line (state 4) or up to the next tag (state 5)
+                while pos < n and buf[U(pos)] != 10 and buf[U(pos)] != 60:
+                    pos += 1
+                continue
+        # ---- a tag starts at pos
+        t0 = pos
+        ne, gt, wid_s, wid_e = _tag_scan(buf, pos, n)
+        if ne < 0 or ne >= n:
+            # a comment, or a tag name that runs to the end of the buffer
+            if gt >= n:
+                status = ST_INCOMPLETE
+                if state == 0 and not in_group:
                     c_pos = t0
                 break
-            nlen = ne - ns
-            is_event = (
-                nlen >= 5
-                and buf[ns] == 101  # e
-                and buf[ns + 1] == 118  # v
-                and buf[ns + 2] == 101  # e
-                and buf[ns + 3] == 110  # n
-                and buf[ns + 4] == 116  # t
-            )
-            is_group = (
-                is_event
-                and nlen == 10
-                and buf[ns + 5] == 103  # g
-                and buf[ns + 6] == 114  # r
-                and buf[ns + 7] == 111  # o
-                and buf[ns + 8] == 117  # u
-                and buf[ns + 9] == 112  # p
-            )
-            is_event = is_event and nlen == 5
+            pos = gt + 1
+            continue
+        closing = buf[U(pos + 1)] == 47
+        ns = pos + 2 if closing else pos + 1
+        nlen = ne - ns
+        key = 0  # the first (up to) 8 bytes of the name
+        for t in range(ns, ns + min(nlen, 8)):
+            key = (key << 8) | np.int64(buf[U(t)])
+        is_event = nlen == 5 and key == _K_EVENT
+        is_group = (
+            nlen == 10
+            and key == _K_EVENTGRO
+            and buf[U(ns + 8)] == 117  # u
+            and buf[U(ns + 9)] == 112  # p
+        )
+        if state == 0:
             if closing:
                 if is_group and in_group:
                     in_group = False
-                if nlen > 0 and buf[ns] == 76:  # '</L': </LesHouchesEvents>
+                if nlen > 0 and buf[U(ns)] == 76:  # '</L': </LesHouchesEvents>
                     st[ST_SAWEND] = 1
             elif is_group or (is_event and not in_group):
                 if pos >= stop_at:
@@ -252,25 +658,14 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                 if is_group:
                     in_group = True
                     g_first = ev
-            # skip the tag, honouring quoted attribute values
-            pos = ne
-            q = 0
-            while pos < n:
-                c = buf[pos]
-                if q != 0:
-                    if c == q:
-                        q = 0
-                elif c == 34 or c == 39:
-                    q = c
-                elif c == 62:
-                    break
-                pos += 1
-            if pos >= n:
-                status = ST_INCOMPLETE
-                if not in_group:
-                    c_pos = t0
-                break
-            pos += 1
+        if gt >= n:
+            status = ST_INCOMPLETE
+            if state == 0 and not in_group:
+                c_pos = t0
+            break
+        selfclose = buf[U(gt - 1)] == 47
+        pos = gt + 1
+        if state == 0:
             if closing:
                 if is_group and not in_group:
                     # a whole group is done: commit
@@ -279,612 +674,59 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     c_slow = nslow
                     c_pos = pos
                 continue
-            if not is_event or buf[pos - 2] == 47:  # other tag, or <event/>
+            if not is_event or selfclose:  # other tag, or <event/>
                 continue
             # ------------------------------------------------ an <event> starts
             if ev >= ev_cap:
                 status = ST_FULL
                 st[ST_A] = FULL_EVENTS
                 break
-            for j in range(nw):
-                wts[ev, j] = nan
+            for j in range(ev * nw, ev * nw + nw):
+                wtf[U(j)] = nan
             state = 1
             continue
-
-        if state == 1:
-            # ------------------------------------------------- NUP IDPRUP (integers)
-            while pos < n:
-                c = buf[pos]
-                if c == 32 or c == 9 or c == 13 or c == 10:
-                    pos += 1
-                else:
-                    break
-            line0 = pos
-            bad = False
-            ival0 = 0
-            for f in range(2):
-                while pos < n and (buf[pos] == 32 or buf[pos] == 9 or buf[pos] == 13):
-                    pos += 1
-                if pos >= n:
-                    break
-                c = buf[pos]
-                neg = c == 45
-                if c == 45 or c == 43:
-                    pos += 1
-                iv = 0
-                s0 = pos
-                while pos < n:
-                    d = np.int64(buf[pos]) - 48
-                    if d < 0 or d > 9:
-                        break
-                    iv = iv * 10 + d
-                    pos += 1
-                nd = pos - s0
-                if pos < n:
-                    c = buf[pos]
-                    if not (c == 32 or c == 9 or c == 13 or c == 10):
-                        nd = 0
-                if nd == 0 or nd > 18:
-                    bad = True
-                    break
-                if neg:
-                    iv = -iv
-                if f == 0:
-                    ival0 = iv
-                else:
-                    ev_pid[ev] = iv
-            if pos >= n:
-                status = ST_INCOMPLETE
-                break
-            if bad:
-                status = ERR_LINE
-                st[ST_ERRPOS] = line0
-                st[ST_B] = 6
-                break
-            nup = ival0
-            if nup < 0:
-                status = ERR_NEGATIVE_NUP
-                st[ST_ERRPOS] = line0
-                break
-            if npart + nup > p_cap:
-                status = ST_FULL
-                st[ST_A] = FULL_PARTICLES
-                break
-            ip = 0
-            fmode = 1
-            fi = 0
-            fn = 4
-            state = 3
-            continue
-
-        if state == 2:
-            # ------------------------------------------- particle line: six integers
-            while pos < n:
-                c = buf[pos]
-                if c == 32 or c == 9 or c == 13 or c == 10:
-                    pos += 1
-                else:
-                    break
-            if pos >= n:
-                status = ST_INCOMPLETE
-                break
-            c = buf[pos]
-            if c == 60 or c == 35:  # '<' or '#': fewer particle lines than NUP
-                status = ERR_FEW_PARTICLES
-                st[ST_ERRPOS] = pos
-                st[ST_A] = nup
-                st[ST_B] = ip
-                break
-            line0 = pos
-            row = npart + ip
-            bad = False
-            for f in range(6):
-                while pos < n and (buf[pos] == 32 or buf[pos] == 9 or buf[pos] == 13):
-                    pos += 1
-                if pos >= n:
-                    break
-                c = buf[pos]
-                neg = c == 45
-                if c == 45 or c == 43:
-                    pos += 1
-                iv = 0
-                s0 = pos
-                while pos < n:
-                    d = np.int64(buf[pos]) - 48
-                    if d < 0 or d > 9:
-                        break
-                    iv = iv * 10 + d
-                    pos += 1
-                nd = pos - s0
-                if pos < n:
-                    c = buf[pos]
-                    if not (c == 32 or c == 9 or c == 13):
-                        nd = 0
-                if nd == 0 or nd > 10:
-                    bad = True
-                    break
-                if neg:
-                    iv = -iv
-                if iv > _INT32_MAX or iv < _INT32_MIN:
-                    bad = True
-                    break
-                if f == 2 or f == 3:
-                    iv -= 1
-                p_i[f, row] = iv
-            if pos >= n:
-                status = ST_INCOMPLETE
-                break
-            if bad:
-                status = ERR_LINE
-                st[ST_ERRPOS] = line0
-                st[ST_B] = 13
-                break
-            # ---------------------------------------- particle line: seven floats
-            full = False
-            for f in range(7):
-                while pos < n and (buf[pos] == 32 or buf[pos] == 9 or buf[pos] == 13):
-                    pos += 1
-                if pos >= n:
-                    break
-                c = buf[pos]
-                if c == 10 or c == 60 or c == 35:  # too few fields
-                    bad = True
-                    break
-                s = pos
-                neg = c == 45
-                if c == 45 or c == 43:
-                    pos += 1
-                mant = 0
-                s0 = pos
-                while pos < n:
-                    d = np.int64(buf[pos]) - 48
-                    if d < 0 or d > 9:
-                        break
-                    mant = mant * 10 + d
-                    pos += 1
-                nd = pos - s0
-                e10 = 0
-                if pos < n and buf[pos] == 46:  # '.'
-                    pos += 1
-                    f0 = pos
-                    while pos < n:
-                        d = np.int64(buf[pos]) - 48
-                        if d < 0 or d > 9:
-                            break
-                        mant = mant * 10 + d
-                        pos += 1
-                    nd += pos - f0
-                    e10 = f0 - pos
-                if pos < n:
-                    c = buf[pos]
-                    if c == 101 or c == 69 or c == 100 or c == 68:  # e E d D
-                        pos += 1
-                        eneg = False
-                        if pos < n:
-                            c = buf[pos]
-                            if c == 45:
-                                eneg = True
-                                pos += 1
-                            elif c == 43:
-                                pos += 1
-                        ex = 0
-                        x0 = pos
-                        while pos < n:
-                            d = np.int64(buf[pos]) - 48
-                            if d < 0 or d > 9:
-                                break
-                            ex = ex * 10 + d
-                            pos += 1
-                        if pos == x0 or pos - x0 > 5:
-                            nd = 0
-                        e10 += -ex if eneg else ex
-                    if pos < n:
-                        c = buf[pos]
-                        if not (c == 32 or c == 10 or c == 9 or c == 13 or c == 60):
-                            nd = 0
-                if nd > 0 and nd <= 18 and mant <= _TWO53 and e10 >= -22 and e10 <= 22:
-                    v = np.float64(mant)
-                    v = v * P10[e10] if e10 >= 0 else v / P10[-e10]
-                    p_f[f, row] = -v if neg else v
-                else:
-                    while pos < n:
-                        c = buf[pos]
-                        if c == 32 or c == 9 or c == 13 or c == 10 or c == 60:
-                            break
-                        pos += 1
-                    p_f[f, row] = nan
-                    if nslow >= s_cap:
-                        full = True
-                        break
-                    slow[nslow, 0] = T_PF + f
-                    slow[nslow, 1] = row
-                    slow[nslow, 2] = s
-                    slow[nslow, 3] = pos
-                    nslow += 1
-            if full:
-                status = ST_FULL
-                st[ST_A] = FULL_SLOW
-                break
-            if pos < n and not bad:
-                while pos < n and (buf[pos] == 32 or buf[pos] == 9 or buf[pos] == 13):
-                    pos += 1
-                if pos < n:
-                    c = buf[pos]
-                    if not (c == 10 or c == 60 or c == 35):  # too many fields
-                        bad = True
-            if pos >= n:
-                status = ST_INCOMPLETE
-                break
-            if bad:
-                status = ERR_LINE
-                st[ST_ERRPOS] = line0
-                st[ST_B] = 13
-                break
-            ip += 1
-            state = 2 if ip < nup else 4
-            continue
-
-        if state == 3:
-            # ------------------------------------------------------------ float run
-            allow_nl = fmode >= 3
-            full = False
-            while True:
-                while pos < n:
-                    c = buf[pos]
-                    if c == 32 or c == 9 or c == 13 or (c == 10 and allow_nl):
-                        pos += 1
-                    else:
-                        break
-                if pos >= n:
-                    break
-                c = buf[pos]
-                if c == 10 or c == 60 or c == 35:  # newline, '<', '#'
-                    break
-                if fi == fn:  # one token too many
-                    break
-                # ---- one number token
-                s = pos
-                idx = 0
-                neg = c == 45
-                if c == 45 or c == 43:
-                    pos += 1
-                mant = 0
-                s0 = pos
-                while pos < n:
-                    d = np.int64(buf[pos]) - 48
-                    if d < 0 or d > 9:
-                        break
-                    mant = mant * 10 + d
-                    pos += 1
-                nd = pos - s0  # digits, leading zeros included (at most 18: no overflow)
-                e10 = 0
-                if pos < n and buf[pos] == 46:  # '.'
-                    pos += 1
-                    f0 = pos
-                    while pos < n:
-                        d = np.int64(buf[pos]) - 48
-                        if d < 0 or d > 9:
-                            break
-                        mant = mant * 10 + d
-                        pos += 1
-                    nd += pos - f0
-                    e10 = f0 - pos
-                if pos < n:
-                    c = buf[pos]
-                    if c == 101 or c == 69 or c == 100 or c == 68:  # e E d D
-                        pos += 1
-                        eneg = False
-                        if pos < n:
-                            c = buf[pos]
-                            if c == 45:
-                                eneg = True
-                                pos += 1
-                            elif c == 43:
-                                pos += 1
-                        ex = 0
-                        x0 = pos
-                        while pos < n:
-                            d = np.int64(buf[pos]) - 48
-                            if d < 0 or d > 9:
-                                break
-                            ex = ex * 10 + d
-                            pos += 1
-                        if pos == x0 or pos - x0 > 5:
-                            nd = 0  # no exponent digits, or a huge exponent: slow path
-                        e10 += -ex if eneg else ex
-                    if pos < n:
-                        c = buf[pos]
-                        if not (c == 32 or c == 10 or c == 9 or c == 13 or c == 60):
-                            nd = 0
-                if nd > 0 and nd <= 18 and mant <= _TWO53 and e10 >= -22 and e10 <= 22:
-                    v = np.float64(mant)
-                    # one correctly rounded operation with an exact power of ten
-                    v = v * P10[e10] if e10 >= 0 else v / P10[-e10]
-                    if neg:
-                        v = -v
-                    tgt = -1
-                else:
-                    # slow path: find the token's end, convert later in Python
-                    while pos < n:
-                        c = buf[pos]
-                        if c == 32 or c == 9 or c == 13 or c == 10 or c == 60:
-                            break
-                        pos += 1
-                    v = nan
-                    tgt = 0
-                if fmode == 2:
-                    p_f[fi, row] = v
-                    if tgt == 0:
-                        tgt = T_PF + fi
-                        idx = row
-                elif fmode == 1:
-                    ev_f[fi, ev] = v
-                    if tgt == 0:
-                        tgt = T_EVF + fi
-                        idx = ev
-                elif fmode == 3:
-                    if fi < nw:
-                        wts[ev, fi] = v
-                    elif tgt == 0:
-                        tgt = -1
-                    if tgt == 0:
-                        tgt = T_WTS
-                        idx = ev * nw + fi
-                else:
-                    wts[ev, wcol] = v
-                    if tgt == 0:
-                        tgt = T_WTS
-                        idx = ev * nw + wcol
-                if tgt >= 0:
-                    if nslow >= s_cap:
-                        full = True
-                        break
-                    slow[nslow, 0] = tgt
-                    slow[nslow, 1] = idx
-                    slow[nslow, 2] = s
-                    slow[nslow, 3] = pos
-                    nslow += 1
-                fi += 1
-            if full:
-                status = ST_FULL
-                st[ST_A] = FULL_SLOW
-                break
-            if pos >= n:
-                status = ST_INCOMPLETE
-                break
-            if fmode <= 2:
-                if fi != fn or (buf[pos] != 10 and buf[pos] != 60 and buf[pos] != 35):
-                    status = ERR_LINE
-                    st[ST_ERRPOS] = line0
-                    st[ST_B] = 6 if fmode == 1 else 13
-                    break
-                if fmode == 2:
-                    ip += 1
-                state = 2 if ip < nup else 4
-                continue
-            if fmode == 3:
-                if fi != nw:
-                    status = ERR_WEIGHT_COUNT
-                    st[ST_ERRPOS] = pos
-                    st[ST_A] = fi
-                    st[ST_B] = nw
-                    break
-            elif fi != 1 or buf[pos] != 60:
-                status = ERR_WGT_VALUE
-                st[ST_ERRPOS] = line0
-                st[ST_A] = fi
-                break
-            # skip the closing tag '</weights>' or '</wgt>'
-            while pos < n and buf[pos] != 62:
-                pos += 1
-            pos += 1
-            state = 4 if fmode == 3 else 5
-            continue
-
-        # ---------------------------------------------- states 4 and 5: markup
-        while pos < n:
-            c = buf[pos]
-            if c == 32 or c == 9 or c == 13 or c == 10:
-                pos += 1
-            else:
-                break
-        if pos >= n:
-            status = ST_INCOMPLETE
-            break
-        c = buf[pos]
-        if c == 35 and state == 4:  # '#' comment line
-            while pos < n and buf[pos] != 10:
-                pos += 1
-            continue
-        if c != 60:
-            if state == 4 and (c == 43 or c == 45 or c == 46 or (c >= 48 and c <= 57)):
-                status = ERR_MANY_PARTICLES
-                st[ST_ERRPOS] = pos
-                st[ST_A] = nup
-                break
-            # free text: skip the line (state 4) or up to the next tag (state 5)
-            while pos < n and buf[pos] != 10 and buf[pos] != 60:
-                pos += 1
-            continue
-        # a tag: read its name
-        if pos + 3 < n and buf[pos + 1] == 33 and buf[pos + 2] == 45 and buf[pos + 3] == 45:
-            pos += 4
-            while pos + 2 < n and not (
-                buf[pos] == 45 and buf[pos + 1] == 45 and buf[pos + 2] == 62
-            ):
-                pos += 1
-            if pos + 2 >= n:
-                status = ST_INCOMPLETE
-                break
-            pos += 3
-            continue
-        tag0 = pos
-        closing = pos + 1 < n and buf[pos + 1] == 47
-        ns = pos + 2 if closing else pos + 1
-        ne = ns
-        while ne < n:
-            c = buf[ne]
-            if c == 32 or c == 9 or c == 13 or c == 10 or c == 62 or c == 47:
-                break
-            ne += 1
-        if ne >= n:
-            status = ST_INCOMPLETE
-            break
-        nlen = ne - ns
-        # end of the start tag (quote-aware), noting the value of an id= attribute
-        q = 0
-        gt = ne
-        wid_s = -1
-        wid_e = -1
-        while gt < n:
-            c = buf[gt]
-            if q != 0:
-                if c == q:
-                    q = 0
-                    if wid_s >= 0 and wid_e < 0:
-                        wid_e = gt
-            elif c == 34 or c == 39:
-                q = c
-                # an attribute value starts; is it id=?
-                b = gt - 1
-                while b > ne and (buf[b] == 32 or buf[b] == 9):
-                    b -= 1
-                if buf[b] == 61:  # '='
-                    b -= 1
-                    while b > ne and (buf[b] == 32 or buf[b] == 9):
-                        b -= 1
-                    if (
-                        b - 2 >= ne
-                        and buf[b] == 100
-                        and buf[b - 1] == 105
-                        and (buf[b - 2] == 32 or buf[b - 2] == 9 or buf[b - 2] == 10)
-                    ):
-                        wid_s = gt + 1
-            elif c == 62:
-                break
-            gt += 1
-        if gt >= n:
-            status = ST_INCOMPLETE
-            break
-        selfclose = buf[gt - 1] == 47
         if closing:
-            if (
-                nlen == 5
-                and buf[ns] == 101
-                and buf[ns + 1] == 118
-                and buf[ns + 2] == 101
-                and buf[ns + 3] == 110
-                and buf[ns + 4] == 116
-            ):
+            if is_event:
                 # </event>
                 npart += nup
-                offsets[ev + 1] = npart
-                group[ev] = g_first if in_group else ev
+                offsets[U(ev + 1)] = npart
+                group[U(ev)] = g_first if in_group else ev
                 ev += 1
-                pos = gt + 1
                 if not in_group:
                     c_ev = ev
                     c_np = npart
                     c_slow = nslow
                     c_pos = pos
                 state = 0
-                continue
-            if state == 5 and nlen == 4 and buf[ns] == 114:  # </rwgt>
+            elif state == 5 and nlen == 4 and buf[U(ns)] == 114:  # </rwgt>
                 state = 4
-            pos = gt + 1
             continue
-        pos = gt + 1
         if selfclose:
             continue
-        if (
-            state == 4
-            and nlen == 4
-            and buf[ns] == 114
-            and buf[ns + 1] == 119
-            and buf[ns + 2] == 103
-            and buf[ns + 3] == 116
-        ):  # <rwgt>
+        if state == 4 and nlen == 4 and key == _K_RWGT:
             state = 5
             wnext = 0
             continue
-        if (
-            state == 4
-            and nlen == 7
-            and buf[ns] == 119
-            and buf[ns + 1] == 101
-            and buf[ns + 2] == 105
-            and buf[ns + 3] == 103
-            and buf[ns + 4] == 104
-            and buf[ns + 5] == 116
-            and buf[ns + 6] == 115
-        ):  # <weights>
-            fmode = 3
-            fi = 0
-            fn = -1
-            line0 = pos
-            state = 3
+        if state == 4 and nlen == 7 and key == _K_WEIGHTS:
+            state = 7
             continue
-        if (
-            state == 5
-            and nlen == 3
-            and buf[ns] == 119
-            and buf[ns + 1] == 103
-            and buf[ns + 2] == 116
-        ):
+        if state == 5 and nlen == 3 and key == _K_WGT:
             # <wgt id=...>: the declared column of this id, expected next one first
-            col = -1
-            if wid_s >= 0 and wid_e >= wid_s:
-                L = wid_e - wid_s
-                for attempt in range(nw + 1):
-                    j = wnext if attempt == 0 else attempt - 1
-                    if j >= nw:
-                        continue
-                    o0 = wid_off[j]
-                    if wid_off[j + 1] - o0 != L:
-                        continue
-                    same = True
-                    for t in range(L):
-                        if wid_bytes[o0 + t] != buf[wid_s + t]:
-                            same = False
-                            break
-                    if same:
-                        col = j
-                        break
+            col = _find_weight(buf, wid_s, wid_e, wid_bytes, wid_off, wnext, nw)
             if col < 0:
                 status = ERR_UNKNOWN_WEIGHT
-                st[ST_ERRPOS] = tag0
+                st[ST_ERRPOS] = t0
                 st[ST_A] = wid_s
                 st[ST_B] = wid_e
                 break
             wcol = col
-            wnext = col + 1
-            fmode = 4
-            fi = 0
-            fn = -1
-            line0 = pos
-            state = 3
+            state = 6
             continue
-        # any other element: skip to its closing tag '</name'
-        found = False
-        while pos + nlen + 2 < n:
-            if buf[pos] == 60 and buf[pos + 1] == 47:
-                same = True
-                for t in range(nlen):
-                    if buf[pos + 2 + t] != buf[ns + t]:
-                        same = False
-                        break
-                if same:
-                    c = buf[pos + 2 + nlen]
-                    if c == 62 or c == 32 or c == 9 or c == 13 or c == 10:
-                        found = True
-                        break
-            pos += 1
-        if not found:
+        # any other element: skip to the end of its closing tag '</name'
+        pos = _skip_element(buf, pos, n, ns, nlen)
+        if pos < 0:
             status = ST_INCOMPLETE
             break
-        while pos < n and buf[pos] != 62:
-            pos += 1
-        pos += 1
 
     st[ST_STATUS] = status
     if status >= 10:
@@ -904,6 +746,7 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
 # ------------------------------------------------------------------ compilation
 
 _COMPILED: Callable[..., Any] | None = None
+_HELPERS = ("_tag_scan", "_find_weight", "_skip_element")
 _TRIED = False
 
 
@@ -921,15 +764,36 @@ def numba_available() -> bool:
 def compiled_kernel() -> Callable[..., Any] | None:
     """The numba-compiled :func:`scan_kernel_source` (cached on disk), or None.
 
-    numba is imported here, on first use, so that ``import evtkin`` stays light.
+    numba is imported here, on first use, so that ``import evtkin`` stays light. The
+    kernel is compiled (or loaded from the cache) right away for the argument types the
+    reader passes (writable C-contiguous arrays); other types compile on first call.
     """
     global _COMPILED, _TRIED
     if not _TRIED:
         _TRIED = True
         if numba_available():
-            from numba import njit
+            from numba import njit, types
 
-            _COMPILED = njit(nogil=True, cache=True, error_model="numpy")(scan_kernel_source)
+            from evtkin._jit import deferred_extensions
+
+            jit = njit(nogil=True, cache=True, error_model="numpy")
+            g = globals()
+            for name in _HELPERS:  # the kernel calls the compiled helpers
+                g[name] = jit(g[name])
+            kernel = jit(scan_kernel_source)
+
+            def c(dtype: Any, ndim: int) -> Any:
+                return types.Array(dtype, ndim, "C")
+
+            u8, i32, i64, f64 = types.uint8, types.int32, types.int64, types.float64
+            signature = (
+                c(u8, 1), c(u8, 1), c(i64, 1), c(i32, 1), c(f64, 2), c(i64, 1),
+                c(i64, 1), c(i32, 2), c(f64, 2), c(f64, 2), c(i64, 2), c(i64, 1),
+            )  # fmt: skip
+            # numba's extension entry points (~1.3 s, unused here) load on the next compile
+            with deferred_extensions():
+                kernel.compile(signature)
+            _COMPILED = kernel
     return _COMPILED
 
 
@@ -1011,7 +875,7 @@ def diagnose_line(buf: np.ndarray, pos: int, expected: int) -> tuple[int, int, i
         return ERR_FIELD_COUNT, (spans[0][0] if spans else pos), len(toks), expected
     n_int = 2 if expected == 6 else 6
     for (s, _e), tok in zip(spans[:n_int], toks[:n_int], strict=True):
-        if not _PLAIN_INT.match(tok) or not _INT32_MIN <= int(tok) <= _INT32_MAX:
+        if not _PLAIN_INT.match(tok) or not _I32_MIN <= int(tok) <= _I32_MAX:
             return ERR_INTEGER, s, 0, 0
     if expected == 6 and int(toks[0]) < 0:
         return ERR_NEGATIVE_NUP, spans[0][0], 0, 0
