@@ -55,7 +55,7 @@ from evtkin.io.sources import (
 
 __all__ = ["LHEWarning", "read_lhe", "scanner_kind"]
 
-BUFFER_BYTES = 8 << 20  # measured sweet spot (PERFORMANCE-NOTES)
+BUFFER_BYTES = 4 << 20  # measured: 4 MB beat 8 MB (faster, ~20 MB less memory) and 2 MB
 _CLOSE = b"</event>"
 _GROUP_OPEN = b"<eventgroup"
 _GROUP_CLOSE = b"</eventgroup>"
