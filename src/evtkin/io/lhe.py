@@ -4,7 +4,7 @@ Pipeline (one run of :func:`read_lhe`)::
 
     reader thread            parse workers (1-2, nogil)      caller's thread
     read/decompress  ---->   byte scanner -> per-buffer  --> copy into the chunk's
-    reused 8 MB buffers      columns (reused)                preallocated columns,
+    reused 4 MB buffers      columns (reused)                preallocated columns,
     cut after </event>                                       zero-copy awkward layout
 
 The scanner is the compiled kernel of :mod:`evtkin.io.lhe_scan`, or the numpy/Python
@@ -19,10 +19,12 @@ an event lacks a declared weight), ``particles`` (jagged ``Particle`` records, s
 event's group (an event outside any group: its own index).
 
 Memory: the parse workers write into buffer-sized columns that are reused; the caller's
-thread copies them into one chunk's columns, allocated once per chunk (with room for the
-particles estimated from the events read so far, grown if needed). Peak memory is
-therefore about the interpreter + libraries + a few 8 MB buffers + two chunks (the one
-being filled and the one the caller holds), independent of the file size.
+thread copies them into one chunk's columns, carved from one block per chunk (with room
+for the particles estimated from the events read so far, grown if needed); the block of a
+chunk the caller has dropped is reused (no fresh pages to fault in). Peak memory is
+therefore about the interpreter + libraries + a few 4 MB buffers + two chunks (the one
+being filled and the one the caller holds), independent of the file size. ``threads=0``
+reads, parses and copies in the caller's thread.
 """
 
 from __future__ import annotations
