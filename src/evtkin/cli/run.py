@@ -60,17 +60,25 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
 
 
 def main(args: argparse.Namespace) -> int:
+    executor = None
+    if args.dask or (args.jobs or 0) > 1:  # known without the config: start workers at once
+        executor = make_executor(jobs=args.jobs, dask=args.dask)
+        _prestart(executor)
     from evtkin.config import load_config
 
-    cfg = load_config(args.config)
+    try:
+        cfg = load_config(args.config)
+    except BaseException:
+        if executor is not None and hasattr(executor, "abandon"):
+            executor.abandon()  # a prestarted local cluster: stop it before reporting
+        raise
     out = Path(args.out) if args.out else (cfg.output.directory
                                            or Path(args.config).resolve().parent / "evtkin-output")
-    input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
-                      if f.is_file())
-    executor = make_executor(jobs=args.jobs, dask=args.dask, input_bytes=input_bytes)
-    prestart = getattr(executor, "prestart", None)
-    if prestart is not None:  # workers warm up while this process imports and plans
-        prestart()
+    if executor is None:
+        input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
+                          if f.is_file())
+        executor = make_executor(jobs=args.jobs, dask=args.dask, input_bytes=input_bytes)
+        _prestart(executor)
     from evtkin.run.pipeline import run
 
     restore = _terminate_like_interrupt()
@@ -98,6 +106,14 @@ def main(args: argparse.Namespace) -> int:
               "provenance.json and results.json", file=sys.stderr)
     print(f"results written to {out}")
     return 0
+
+
+def _prestart(executor: Any) -> None:
+    """Let worker processes (or a local Dask cluster) start while this process imports,
+    reads the config and plans the run."""
+    prestart = getattr(executor, "prestart", None)
+    if prestart is not None:
+        prestart()
 
 
 def _terminate_like_interrupt() -> Callable[[], None]:

@@ -358,6 +358,32 @@ class DaskExecutor(_Base):
         self.workers = self.n_workers
         self._client: Any = None
         self._cluster: Any = None
+        self._starting: threading.Thread | None = None
+        self._start_error: BaseException | None = None
+
+    def prestart(self) -> None:
+        """With ``address="local"``: start the LocalCluster now, in a thread, so that its
+        scheduler and workers come up while this process still prepares the run."""
+        if self.address != "local" or self._starting is not None or self._cluster is not None:
+            return
+
+        def start() -> None:
+            try:
+                from distributed import LocalCluster
+
+                self._cluster = _local_cluster(LocalCluster, self.n_workers)
+            except BaseException as exc:  # reported by __enter__
+                self._start_error = exc
+
+        self._starting = threading.Thread(target=start, daemon=True, name="evtkin-dask-start")
+        self._starting.start()
+
+    def abandon(self) -> None:
+        """Stop a cluster started by :meth:`prestart` that will not be used."""
+        if self._starting is not None:
+            self._starting.join()
+            self._starting = None
+        self.__exit__()
 
     def __enter__(self) -> DaskExecutor:
         try:
@@ -366,9 +392,18 @@ class DaskExecutor(_Base):
             raise EvtkinError(
                 "running on Dask needs the 'distributed' package: pip install 'evtkin[dask]'"
             ) from exc
+        if self._starting is not None:
+            self._starting.join()
+            self._starting = None
+            if self._start_error is not None:
+                err, self._start_error = self._start_error, None
+                if isinstance(err, OSError):
+                    raise EvtkinError(f"cannot start a local Dask cluster: {err}") from None
+                raise err
         try:
             if self.address == "local":
-                self._cluster = _local_cluster(LocalCluster, self.n_workers)
+                if self._cluster is None:
+                    self._cluster = _local_cluster(LocalCluster, self.n_workers)
                 self._client = Client(self._cluster)
             elif self.address.endswith(".json") and os.path.isfile(self.address):
                 self._client = Client(scheduler_file=self.address, timeout=self.timeout)

@@ -48,7 +48,7 @@ Progress = Callable[[int], None]
 #: automatic splitting never makes byte-range units smaller than this
 MIN_UNIT_BYTES = 32 << 20
 #: automatic splitting aims at this many units per worker (load balance vs per-unit cost)
-UNITS_PER_WORKER = 4
+UNITS_PER_WORKER = 2
 
 
 @dataclass(frozen=True)
