@@ -81,10 +81,8 @@ def _kernel() -> tuple[Callable[..., Any], str]:
     global _KERNEL, _KIND
     if _KERNEL is None:
         compiled = c.compiled_kernel()
-        if compiled is not None:
-            from evtkin._jit import first_call_deferred
-
-            _KERNEL, _KIND = first_call_deferred(compiled), "numba"
+        if compiled is not None:  # loaded already, with numba's extensions deferred
+            _KERNEL, _KIND = compiled, "numba"
         else:
             from evtkin.io.lhe_fallback import scan_kernel_py
 
