@@ -44,3 +44,27 @@ def test_cli_run_reports_config_errors(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "a.toml:10: histograms.n_leptons.normalise" in err
     assert "evtkin: error:" in err
+
+
+EARLY_START = r"""
+import sys
+import evtkin.run.forkserver as fs
+heavy = ("numpy", "awkward", "numba", "evtkin.run.executors")
+seen = []
+fs.start_forkserver = lambda: seen.append([m for m in heavy if m in sys.modules])
+from evtkin.cli import main
+main(["run", sys.argv[1], "--jobs", "2"])
+print(seen)
+"""
+
+
+def test_cli_jobs_starts_the_forkserver_before_the_heavy_imports(tmp_path):
+    # the workers' forkserver imports evtkin while this process does: started first thing
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-c", EARLY_START, str(tmp_path / "missing.toml")],
+                         capture_output=True, text=True, check=True).stdout
+    calls = out.strip().splitlines()[-1]
+    # the first start (later ones are no-ops) came before any of them was imported
+    assert calls.startswith("[[], "), calls

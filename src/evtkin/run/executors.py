@@ -37,6 +37,8 @@ from dataclasses import dataclass, field
 from typing import Any, Protocol
 
 from evtkin.errors import ConfigError, EvtkinError
+from evtkin.run.forkserver import start_forkserver
+from evtkin.run.forkserver import start_method as forkserver_start_method
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.plan import Plan
 from evtkin.run.progress import RunProgress
@@ -222,17 +224,6 @@ def _worker_run(plan: Plan, unit: WorkUnit, read_threads: int | None) -> UnitOut
     return run_unit(plan, unit, read_threads, cb)
 
 
-def _start_method() -> str:
-    # fork is unsafe with the reader's threads; forkserver forks from a clean process that
-    # imported evtkin once (cheap workers), spawn is the portable fallback
-    return "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
-
-
-#: modules the forkserver imports before it forks workers: evtkin, and the warm-up that loads
-#: the compiled kernels, so that every worker starts with them loaded
-_PRELOAD = ["evtkin.run.executors", "evtkin.run._warmup"]
-
-
 class ProcessExecutor(_Base):
     """Run units in ``jobs`` local worker processes (default: every available core).
 
@@ -247,17 +238,14 @@ class ProcessExecutor(_Base):
         if self.workers < 1:
             raise ValueError(f"jobs must be >= 1, got {jobs}")
         self.read_threads = read_threads
-        self.start_method = start_method or _start_method()
+        self.start_method = start_method or forkserver_start_method()
 
     def prestart(self) -> None:
         """Start the forkserver now, so that it imports evtkin and loads the kernels
         (seconds) while this process still prepares the run; idempotent."""
         if self.start_method != "forkserver" or self.workers == 1:
             return
-        from multiprocessing import forkserver
-
-        mp.get_context("forkserver").set_forkserver_preload(_PRELOAD)
-        forkserver.ensure_running()
+        start_forkserver()
 
     def describe(self) -> dict[str, Any]:
         return {"kind": "processes", "workers": self.workers, "start_method": self.start_method}
@@ -486,7 +474,7 @@ def _local_cluster(factory: Any, n_workers: int) -> Any:
     # the GIL: measured ~30 % more CPU per unit on this workload; a local cluster started for
     # one run has no dashboard to show the profiles anyway
     quiet = {"distributed.worker.profile.enabled": False}
-    method = _start_method()
+    method = forkserver_start_method()
     if method == "forkserver":
         from distributed.utils import get_mp_context
 

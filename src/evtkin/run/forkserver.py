@@ -1,0 +1,37 @@
+"""Early start of the forkserver that local worker processes are forked from.
+
+This module imports nothing but :mod:`multiprocessing`, so that the command line can start
+the forkserver first thing, before it imports numpy, awkward, numba and the rest of evtkin
+itself (~1.5 s). The forkserver then imports evtkin and loads the compiled kernels
+(:data:`PRELOAD`) on the other core meanwhile, and the workers forked from it start warm.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+
+__all__ = ["PRELOAD", "start_forkserver", "start_method"]
+
+#: modules the forkserver imports before it forks workers: evtkin, and the warm-up that loads
+#: the compiled kernels, so that every worker starts with them loaded
+PRELOAD = ["evtkin.run.executors", "evtkin.run._warmup"]
+
+
+def start_method() -> str:
+    """``forkserver`` where it exists, else ``spawn``.
+
+    fork is unsafe with the reader's threads; forkserver forks from a clean process that
+    imported evtkin once (cheap workers), spawn is the portable fallback.
+    """
+    return "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
+
+
+def start_forkserver() -> None:
+    """Start the forkserver (preloading :data:`PRELOAD`) unless it runs already; nothing
+    where there is no forkserver."""
+    if start_method() != "forkserver":
+        return
+    from multiprocessing import forkserver
+
+    mp.get_context("forkserver").set_forkserver_preload(PRELOAD)
+    forkserver.ensure_running()
