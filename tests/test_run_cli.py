@@ -51,7 +51,7 @@ import sys
 import evtkin.run.forkserver as fs
 heavy = ("numpy", "awkward", "numba", "evtkin.run.executors")
 seen = []
-fs.start_forkserver = lambda: seen.append([m for m in heavy if m in sys.modules])
+fs.start_forkserver = lambda preload=None: seen.append([m for m in heavy if m in sys.modules])
 from evtkin.cli import main
 main(["run", sys.argv[1], "--jobs", "2"])
 print(seen)

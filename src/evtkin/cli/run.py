@@ -61,12 +61,13 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
 
 def main(args: argparse.Namespace) -> int:
     executor = None
-    if not args.dask and (args.jobs or 0) > 1:
+    if args.dask == "local" or (not args.dask and (args.jobs or 0) > 1):
         # local workers: start their forkserver before this process imports evtkin's
-        # analysis layers (numpy, awkward, numba: ~1.5 s), so both import at the same time
-        from evtkin.run.forkserver import start_forkserver
+        # analysis layers (numpy, awkward, numba, distributed: seconds), so that both
+        # import at the same time and the workers fork from it ready
+        from evtkin.run.forkserver import DASK_PRELOAD, start_forkserver
 
-        start_forkserver()
+        start_forkserver(DASK_PRELOAD if args.dask else None)
     if args.dask or (args.jobs or 0) > 1:  # known without the config: start workers at once
         executor = make_executor(jobs=args.jobs, dask=args.dask)
         _prestart(executor)

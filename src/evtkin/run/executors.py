@@ -37,7 +37,7 @@ from dataclasses import dataclass, field
 from typing import Any, Protocol
 
 from evtkin.errors import ConfigError, EvtkinError
-from evtkin.run.forkserver import start_forkserver
+from evtkin.run.forkserver import DASK_PRELOAD, start_forkserver
 from evtkin.run.forkserver import start_method as forkserver_start_method
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.plan import Plan
@@ -479,8 +479,7 @@ def _local_cluster(factory: Any, n_workers: int) -> Any:
         from distributed.utils import get_mp_context
 
         with dask.config.set({"distributed.worker.multiprocessing-method": method, **quiet}):
-            get_mp_context().set_forkserver_preload(
-                ["distributed", "evtkin.run.executors", "evtkin.run._warmup"])
+            get_mp_context().set_forkserver_preload(DASK_PRELOAD)  # (if not started yet)
             return factory(n_workers=n_workers, threads_per_worker=1, processes=True,
                            dashboard_address=None, silence_logs=logging.ERROR)
     with dask.config.set(quiet):

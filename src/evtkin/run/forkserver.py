@@ -10,11 +10,14 @@ from __future__ import annotations
 
 import multiprocessing as mp
 
-__all__ = ["PRELOAD", "start_forkserver", "start_method"]
+__all__ = ["DASK_PRELOAD", "PRELOAD", "start_forkserver", "start_method"]
 
 #: modules the forkserver imports before it forks workers: evtkin, and the warm-up that loads
 #: the compiled kernels, so that every worker starts with them loaded
 PRELOAD = ["evtkin.run.executors", "evtkin.run._warmup"]
+#: the same for the workers of a local Dask cluster (a module that is not installed is
+#: skipped by the forkserver)
+DASK_PRELOAD = ["distributed", *PRELOAD]
 
 
 def start_method() -> str:
@@ -26,12 +29,12 @@ def start_method() -> str:
     return "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
 
 
-def start_forkserver() -> None:
-    """Start the forkserver (preloading :data:`PRELOAD`) unless it runs already; nothing
-    where there is no forkserver."""
+def start_forkserver(preload: list[str] | None = None) -> None:
+    """Start the forkserver, preloading ``preload`` (default :data:`PRELOAD`), unless it
+    runs already; nothing where there is no forkserver."""
     if start_method() != "forkserver":
         return
     from multiprocessing import forkserver
 
-    mp.get_context("forkserver").set_forkserver_preload(PRELOAD)
+    mp.get_context("forkserver").set_forkserver_preload(PRELOAD if preload is None else preload)
     forkserver.ensure_running()
