@@ -47,7 +47,9 @@ Importing this module does not import numba: :func:`compiled_kernel` compiles (o
 from the cache) on first use, for the argument types the reader passes. The cold compile
 uses numba's pipeline without the passes that leave this kernel unchanged, and memoised
 call typing (``evtkin._jit.lean_pipeline`` and ``lean_compile``): ~9 s instead of ~15 s
-here, with the same machine code speed (bench/bench_lhe_kernel.py).
+here, with the same machine code speed (bench/bench_lhe_kernel.py). After any change to
+the kernel or to how it is compiled, ``bench/check_lhe_kernels.py`` compares its output
+with the previous build's on random pieces of real and damaged text.
 """
 
 from __future__ import annotations
