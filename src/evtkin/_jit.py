@@ -146,7 +146,8 @@ def plain(**options: Any) -> Callable[[F], F]:
 
 def first_call_deferred(dispatcher: F) -> F:
     """A wrapper of a numba ``dispatcher`` whose first call defers numba's extension
-    loading (see the module docstring). ``.dispatcher`` is the numba dispatcher."""
+    loading (see the module docstring) and, if it compiles, types calls with
+    :func:`lean_compile`. ``.dispatcher`` is the numba dispatcher."""
     ready = False
 
     @functools.wraps(dispatcher)
@@ -154,7 +155,7 @@ def first_call_deferred(dispatcher: F) -> F:
         nonlocal ready
         if ready:
             return dispatcher(*args)
-        with deferred_extensions():
+        with deferred_extensions(), lean_compile():
             out = dispatcher(*args)
         ready = True
         return out
