@@ -71,7 +71,7 @@ def _save(fig: Any, stem: Path, formats: Sequence[str]) -> list[Path]:
     out = []
     for fmt in formats:
         buf = io.BytesIO()
-        fig.savefig(buf, format=fmt, dpi=150, bbox_inches="tight",
+        fig.savefig(buf, format=fmt, dpi=150,
                     metadata={"Creator": "evtkin"} if fmt in ("png", "pdf") else None)
         out.append(atomic_write_bytes(stem.with_name(f"{stem.name}.{fmt}"), buf.getvalue()))
     return out
