@@ -69,7 +69,11 @@ def _pyplot() -> Any:
 
 def _save(fig: Any, stem: Path, formats: Sequence[str]) -> list[Path]:
     out = []
-    for fmt in formats:
+    for k, fmt in enumerate(formats):
+        if k == 1:
+            # the constrained layout placed the axes while the first format was drawn; keep
+            # those positions instead of laying out again (a whole extra drawing pass)
+            fig.set_layout_engine("none")
         buf = io.BytesIO()
         fig.savefig(buf, format=fmt, dpi=150,
                     metadata={"Creator": "evtkin"} if fmt in ("png", "pdf") else None)
