@@ -102,3 +102,20 @@ def types_of(value):  # type: ignore[no-untyped-def]
     from numba import typeof
 
     return typeof(value)
+
+
+def test_lean_compile_nests() -> None:
+    from numba.core import types
+    from numba.core.typing.context import BaseContext
+
+    from evtkin._jit import lean_compile
+
+    before = BaseContext.resolve_function_type
+    with lean_compile():
+        outer = BaseContext.resolve_function_type
+        with lean_compile():
+            assert BaseContext.resolve_function_type is not outer
+        assert BaseContext.resolve_function_type is outer
+        assert "get_call_type" in vars(types.Function)
+    assert BaseContext.resolve_function_type is before
+    assert "get_call_type" not in vars(types.Function)
