@@ -272,3 +272,23 @@ def test_drell_yan_example_runs(tmp_path):
     nh = res.samples["dy"].histograms["mll"]
     assert nh.entries > 0
     assert "cos_theta_cs" in res.samples["dy"].histograms
+
+
+def test_a_unit_reuses_the_memory_of_its_previous_chunk(dy_file, monkeypatch):
+    # process_unit lets go of a chunk (and what it computed from it) before the next one
+    # is read, so the reader refills the same memory: one chunk's worth per worker, not two
+    from evtkin.io import lhe
+
+    fresh = []
+    real = lhe._fresh_block
+
+    def counting(nbytes):
+        fresh.append(nbytes)
+        return real(nbytes)
+
+    monkeypatch.setattr(lhe, "_fresh_block", counting)
+    plan = build_plan(load_config(dy_config([dy_file])), step_size=200)
+    (unit,) = make_units(plan, workers=1)
+    res = process_unit(plan, unit, read_threads=0)
+    assert res.n_events() == N_DY  # 8 chunks
+    assert len(fresh) == 1, fresh

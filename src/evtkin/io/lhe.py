@@ -883,6 +883,7 @@ def _iterate(
                     total += chunk.n
                     chunk = None
                     yield out
+                    del out  # the caller may have let go of it: its memory can be reused
             n_seen += s.n_ev
             status, resume = s.status, s.resume
             free.append(s)

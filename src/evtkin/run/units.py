@@ -272,6 +272,9 @@ def _chunks(unit: WorkUnit, step_size: int, threads: int | None = None) -> Itera
                     return
                 remaining -= len(chunk)
             yield chunk
+            # let go of the chunk before the reader makes the next one, so that its memory
+            # is reused instead of a second chunk's being allocated
+            del chunk
     finally:
         close = getattr(reader, "close", None)
         if close is not None:
@@ -385,6 +388,9 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
         seconds["fill"] += t0 - t2
         if progress is not None:
             progress(n)
+        # drop the chunk and everything made from it before the next one is read: the
+        # reader then reuses its memory (a worker holds one chunk at a time, not two)
+        del chunk, view, masks, entries, w0, wv, group
     seconds["read"] += time.perf_counter() - t0
     result.seconds = seconds
     return result
