@@ -50,6 +50,48 @@ def test_write_plots(tmp_path: Path) -> None:
     assert not list((tmp_path / "plots").glob(".*"))
 
 
+def test_plots_drawn_in_processes_are_the_same_files(tmp_path: Path) -> None:
+    # three samples: one overlaid 1-D figure and three 2-D maps, enough for the process pool
+    res = Results({k: _sample(k, d) for k, d in (("a", 0.0), ("b", 1.5), ("c", 3.0))})
+    one = write_plots(tmp_path / "one", res, note="toy", formats=("png", "pdf"), workers=1)
+    two = write_plots(tmp_path / "two", res, note="toy", formats=("png", "pdf"), workers=2)
+    assert len(one) == 8
+    assert [f.name for f in two] == [f.name for f in one]  # same order
+    for a, b in zip(one, two, strict=True):
+        assert b.parent == tmp_path / "two" / "plots"
+        assert a.read_bytes() == b.read_bytes(), a.name  # PDFs carry no creation date
+
+
+def test_draw_all_keeps_task_order_and_uses_other_processes() -> None:
+    import os
+
+    from evtkin.output.drawing import MIN_FIGURES_FOR_PROCESSES, draw_all
+
+    n = MIN_FIGURES_FOR_PROCESSES + 2
+    assert draw_all([(pow, (2, k), {}) for k in range(n)], workers=2) == [2**k for k in range(n)]
+    pids = draw_all([(os.getpid, (), {})] * n, workers=2)
+    assert os.getpid() not in pids
+    assert draw_all([(os.getpid, (), {})] * n, workers=1) == [os.getpid()] * n
+    # too few figures to pay for starting processes: drawn here
+    few = MIN_FIGURES_FOR_PROCESSES - 1
+    assert draw_all([(os.getpid, (), {})] * few, workers=2) == [os.getpid()] * few
+
+
+def test_plot_cores_follow_the_executor() -> None:
+    from evtkin.run.executors import (
+        ProcessExecutor,
+        SerialExecutor,
+        available_cores,
+        local_cores,
+    )
+
+    assert local_cores(SerialExecutor(read_threads=0)) == 1  # --jobs 1: one core, plots too
+    assert local_cores(ProcessExecutor(1)) == 1
+    assert local_cores(ProcessExecutor(64)) == available_cores()
+    assert local_cores(None) == available_cores()  # the default run uses reader threads
+    assert local_cores(object()) == 1
+
+
 def test_plot_rejects_different_binning(tmp_path: Path) -> None:
     s = _sample("a", 0.0)
     h = s.histograms["mll"]

@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
+from evtkin.cli.run import _positive
+
 
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
@@ -63,12 +65,26 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         help="merge adjacent low-content bins (default) or only flag them",
     )
     p.add_argument("--no-report", action="store_true", help="do not write report.html")
+    p.add_argument(
+        "--jobs",
+        "-j",
+        type=_positive,
+        metavar="N",
+        help="processes drawing the plots (default: every available core; 1: this process only)",
+    )
     p.set_defaults(func=run)
     return p
 
 
 def run(args: argparse.Namespace) -> int:
+    if args.jobs != 1:
+        # the processes that draw the plots fork from a forkserver that imports matplotlib
+        # and evtkin's plotting now, while this process imports and compares
+        from evtkin.run.forkserver import start_forkserver
+
+        start_forkserver(["evtkin.output.compare_plots", "matplotlib.pyplot"])
     from evtkin.output.compare_plots import compare_results, summary_text
+    from evtkin.run.executors import available_cores
 
     cs = compare_results(
         args.folders,
@@ -82,6 +98,7 @@ def run(args: argparse.Namespace) -> int:
         min_entries=args.min_entries,
         low_content=args.low_content,
         report=not args.no_report,
+        workers=args.jobs if args.jobs else available_cores(),
     )
     print(summary_text(cs), end="")
     print(f"written: {cs.out}/summary.txt, summary.csv, summary.json, plots/")

@@ -33,6 +33,7 @@ import numpy as np
 
 from evtkin.compare import HistComparison, HistData, compare_histograms
 from evtkin.errors import ResultsError
+from evtkin.output.drawing import Task, draw_all
 from evtkin.output.plots import display_label
 
 __all__ = [
@@ -628,11 +629,13 @@ def compare_results(
     min_entries: float = 5.0,
     low_content: str = "merge",
     report: bool = True,
+    workers: int = 1,
 ) -> ComparisonSet:
     """Compare result folders (the first is the reference) and write plots, tables and a report.
 
     One folder alone compares its samples (the first is the reference), or, with ``pair``, two of
-    its histograms. See :func:`compare_loaded` for the pairing rules.
+    its histograms. See :func:`compare_loaded` for the pairing rules. ``workers``: processes
+    drawing the plots (see :func:`evtkin.output.drawing.draw_all`).
     """
     from evtkin.output.tables import load_results
 
@@ -654,13 +657,15 @@ def compare_results(
     outp.mkdir(parents=True, exist_ok=True)
     cs.out = str(outp)
     used: set[str] = set()
+    tasks: list[Task] = []
     for e in cs.entries:
         stem = _safe(e.name)
         while stem in used:
             stem += "_"
         used.add(stem)
         e.plot = f"plots/{stem}.png"
-        plot_comparison(e, outp / e.plot, pulls=pulls, note=cs.note)
+        tasks.append((plot_comparison, (e, outp / e.plot), {"pulls": pulls, "note": cs.note}))
+    draw_all(tasks, workers)
     write_summary(cs, outp)
     if report:
         from evtkin.output.report import write_compare_report

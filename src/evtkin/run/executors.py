@@ -56,6 +56,7 @@ __all__ = [
     "available_cores",
     "execute",
     "get_executor",
+    "local_cores",
     "run_unit",
 ]
 
@@ -70,6 +71,24 @@ def available_cores() -> int:
         return max(1, len(os.sched_getaffinity(0)))  # type: ignore[attr-defined,unused-ignore]
     except AttributeError:  # pragma: no cover - not Linux
         return max(1, os.cpu_count() or 1)
+
+
+def local_cores(executor: Any) -> int:
+    """Cores of this machine that a run on ``executor`` was given, for the work after the
+    units (drawing plots): 1 for ``--jobs 1``, the worker count of a process pool, every
+    core for the default serial run (its reader uses threads) and for Dask (the plots are
+    drawn on this machine, the client). An executor of another kind: 1."""
+    if executor is None:
+        return available_cores()
+    if isinstance(executor, SerialExecutor):
+        return 1 if executor.read_threads == 0 else available_cores()
+    if isinstance(executor, ProcessExecutor):
+        return max(1, min(executor.workers, available_cores()))
+    if isinstance(executor, DaskExecutor):
+        if executor.address == "local":
+            return max(1, min(executor.n_workers, available_cores()))
+        return available_cores()
+    return 1
 
 
 # --------------------------------------------------------------------------- one unit

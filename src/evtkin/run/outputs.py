@@ -52,8 +52,10 @@ def to_results(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> t
     return tables.Results(samples=samples, meta=meta)
 
 
-def write_outputs(plan: Plan, result: RunResult, folder: str | Path) -> Path:
-    """Write every requested output of ``result`` into ``folder`` (created if needed)."""
+def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers: int = 1) -> Path:
+    """Write every requested output of ``result`` into ``folder`` (created if needed).
+
+    ``workers``: processes that may draw the plots (the cores the run was given)."""
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     # every file is written under a temporary name and renamed; while the folder is being
@@ -72,7 +74,7 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path) -> Path:
         from evtkin.output.plots import write_plots
 
         write_plots(out, results, note=str(results.meta.get("note", "")),
-                    formats=plan.config.output.plot_formats)
+                    formats=plan.config.output.plot_formats, workers=workers)
     tables.write_provenance(out, result.provenance)
     if any(getattr(s, "responses", None) for s in result.samples.values()):
         from evtkin.hists.response import write_responses

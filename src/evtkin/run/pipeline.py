@@ -27,7 +27,7 @@ from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import NormalisedHist, normalise
 from evtkin.hists.xsec import FileTotals, ProcessDecl, RunDecl, XsecResult, combine_files
-from evtkin.run.executors import Executor, execute
+from evtkin.run.executors import Executor, execute, local_cores
 from evtkin.run.partial import PartialResult
 from evtkin.run.plan import Plan, build_plan
 from evtkin.run.units import make_units
@@ -315,6 +315,6 @@ def run(
     if target is not None:
         from evtkin.run.outputs import write_outputs
 
-        write_outputs(plan, result, target)
+        write_outputs(plan, result, target, workers=local_cores(executor))
         result.out = target
     return result
