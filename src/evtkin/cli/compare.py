@@ -77,14 +77,14 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
+    # evtkin.run.forkserver imports only multiprocessing and os (not the run layer)
+    from evtkin.run.forkserver import available_cores, start_forkserver
+
     if args.jobs != 1:
         # the processes that draw the plots fork from a forkserver that imports matplotlib
         # and evtkin's plotting now, while this process imports and compares
-        from evtkin.run.forkserver import start_forkserver
-
         start_forkserver(["evtkin.output.compare_plots", "matplotlib.pyplot"])
     from evtkin.output.compare_plots import compare_results, summary_text
-    from evtkin.run.executors import available_cores
 
     cs = compare_results(
         args.folders,

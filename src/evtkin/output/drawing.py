@@ -13,7 +13,8 @@ from typing import Any
 
 __all__ = ["MIN_FIGURES_FOR_PROCESSES", "Task", "draw_all"]
 
-#: fewer figures than this are drawn in this process (starting processes costs about a figure)
+#: fewer figures than this are drawn in this process (starting a worker costs about two
+#: figures on a slow machine)
 MIN_FIGURES_FOR_PROCESSES = 4
 
 #: one figure: ``(function, args, kwargs)``; function, arguments and result must pickle

@@ -37,7 +37,7 @@ from dataclasses import dataclass, field
 from typing import Any, Protocol
 
 from evtkin.errors import ConfigError, EvtkinError
-from evtkin.run.forkserver import DASK_PRELOAD, start_forkserver
+from evtkin.run.forkserver import DASK_PRELOAD, available_cores, start_forkserver
 from evtkin.run.forkserver import start_method as forkserver_start_method
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.plan import Plan
@@ -63,14 +63,6 @@ __all__ = [
 
 class UnitError(EvtkinError):
     """A work unit failed (its file and range are named in the message)."""
-
-
-def available_cores() -> int:
-    """Cores this process may run on."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))  # type: ignore[attr-defined,unused-ignore]
-    except AttributeError:  # pragma: no cover - not Linux
-        return max(1, os.cpu_count() or 1)
 
 
 def local_cores(executor: Any) -> int:

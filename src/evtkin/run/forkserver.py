@@ -9,8 +9,9 @@ itself (~1.5 s). The forkserver then imports evtkin and loads the compiled kerne
 from __future__ import annotations
 
 import multiprocessing as mp
+import os
 
-__all__ = ["DASK_PRELOAD", "PRELOAD", "start_forkserver", "start_method"]
+__all__ = ["DASK_PRELOAD", "PRELOAD", "available_cores", "start_forkserver", "start_method"]
 
 #: modules the forkserver imports before it forks workers: evtkin, and the warm-up that loads
 #: the compiled kernels, so that every worker starts with them loaded
@@ -18,6 +19,14 @@ PRELOAD = ["evtkin.run.executors", "evtkin.run._warmup"]
 #: the same for the workers of a local Dask cluster (a module that is not installed is
 #: skipped by the forkserver)
 DASK_PRELOAD = ["distributed", *PRELOAD]
+
+
+def available_cores() -> int:
+    """Cores this process may run on."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))  # type: ignore[attr-defined,unused-ignore]
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
 
 
 def start_method() -> str:
