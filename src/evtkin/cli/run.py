@@ -55,11 +55,20 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                        help="skip work units that fail (e.g. a corrupt file), finish the rest "
                        "and list what was skipped in the provenance and the results (default: "
                        "stop at the first failure)")
+    where.add_argument("--part", metavar="K/N",
+                       help="read only the K-th of N parts of the input files (whole files, "
+                       "dealt out by size; for batch jobs): merge the N results folders with "
+                       "'evtkin merge OUT FOLDER...'")
     p.set_defaults(func=main)
     return p
 
 
 def main(args: argparse.Namespace) -> int:
+    part = None
+    if args.part:
+        from evtkin.run.parts import parse_part
+
+        part = parse_part(args.part)
     executor = None
     if args.dask == "local" or (not args.dask and (args.jobs or 0) > 1):
         # local workers: start their forkserver before this process imports evtkin's
@@ -92,7 +101,8 @@ def main(args: argparse.Namespace) -> int:
     try:
         result = run(cfg, out=out, max_events=args.max_events, step_size=args.step_size,
                      progress=None, executor=executor, skip_bad=args.skip_bad,
-                     unit_bytes=args.unit_size * 1_000_000 if args.unit_size else None)
+                     unit_bytes=args.unit_size * 1_000_000 if args.unit_size else None,
+                     part=part)
     finally:
         restore()
     for name, s in result.samples.items():

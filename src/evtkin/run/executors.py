@@ -32,7 +32,7 @@ import signal
 import threading
 import time
 import uuid
-from collections.abc import Iterator, Sequence
+from collections.abc import Collection, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol
 
@@ -592,7 +592,8 @@ def _check(oc: UnitOutcome, unit: WorkUnit, n_units: int) -> PartialResult:
 
 def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = False,
             progress: bool | None = False, unit_bytes: int | None = None,
-            units: Sequence[WorkUnit] | None = None) -> Execution:
+            units: Sequence[WorkUnit] | None = None,
+            only_files: Collection[tuple[str, int]] | None = None) -> Execution:
     """Split the inputs into units, run them on ``executor`` (default serial), merge.
 
     ``skip_bad``: a failing unit is recorded in ``Execution.skipped`` (file, range, error)
@@ -600,6 +601,8 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
     :class:`UnitError`. Config errors found while running always stop the run.
     ``progress``: a progress bar on stderr (``None``: only on a terminal). ``unit_bytes``:
     target size of byte-range units (default: automatic from the number of workers).
+    ``only_files``: run only the units of these ``(sample, file index)`` inputs (one part of
+    a run split over jobs, see :mod:`evtkin.run.parts`).
     The SHA-256 of each LHE input is computed apart from the units when the executor has a
     ``checksums(paths)`` method (all executors here do) and recorded in the merged result.
     """
@@ -609,6 +612,9 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
     with ex:
         if units is None:
             units = make_units(plan, workers=ex.workers, unit_bytes=unit_bytes)
+        if only_files is not None:
+            keep = set(only_files)
+            units = [u for u in units if (u.sample, u.file_index) in keep]
         units = _indexed(units)
         start_checksums = getattr(ex, "checksums", None)
         if start_checksums is not None:

@@ -75,6 +75,10 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers:
 
         write_plots(out, results, note=str(results.meta.get("note", "")),
                     formats=plan.config.output.plot_formats, workers=workers)
+    if result.partial is not None:  # the sums evtkin merge adds up
+        from evtkin.run.partial_store import save_partial
+
+        save_partial(out, result.partial, config_sha256=plan.config.sha256)
     tables.write_provenance(out, result.provenance)
     if any(getattr(s, "responses", None) for s in result.samples.values()):
         from evtkin.hists.response import write_responses

@@ -71,6 +71,8 @@ class RunResult:
     provenance: dict[str, Any]
     out: Path | None = None
     seconds: dict[str, float] = field(default_factory=dict)
+    #: the merged, not yet normalised sums (written as ``partial.npz`` for ``evtkin merge``)
+    partial: PartialResult | None = None
 
     def __getitem__(self, sample: str) -> dict[str, Any]:
         return self.hists(sample)
@@ -280,6 +282,7 @@ def run(
     executor: Executor | None = None,
     skip_bad: bool = False,
     unit_bytes: int | None = None,
+    part: tuple[int, int] | None = None,
 ) -> RunResult:
     """Run an analysis and return its normalised histograms (``result[sample][hist]``).
 
@@ -292,25 +295,38 @@ def run(
     here; see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is skipped and listed
     in the provenance and results (default: the run stops with an error naming its file and
     range). ``unit_bytes``: target size of byte-range units of plain LHE files (default:
-    automatic from the number of workers).
+    automatic from the number of workers). ``part``: ``(K, N)`` reads only the K-th of N
+    parts of the input files (:func:`evtkin.run.parts.split_files`), for jobs whose results
+    folders ``evtkin merge`` adds up.
     """
     started = _dt.datetime.now(_dt.timezone.utc)
     t0 = time.perf_counter()
     cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
     plan = build_plan(cfg, step_size=step_size, max_events=max_events)
-    make_units(plan)  # missing inputs fail before anything else
+    planned = make_units(plan)  # missing inputs fail before anything else
+    only_files = None
+    if part is not None:
+        from evtkin.run.parts import split_files
+
+        k, n = part
+        sizes: dict[tuple[str, int], int] = {}
+        for u in planned:
+            sizes[(u.sample, u.file_index)] = sizes.get((u.sample, u.file_index), 0) + u.size
+        only_files = split_files([(s, i, b) for (s, i), b in sizes.items()], n)[k - 1]
     from evtkin.hists.recipes import check_config_against_files
 
     check_config_against_files(cfg)  # unknown weight groups/ids fail before reading events
     execution = execute(plan, executor, skip_bad=skip_bad, progress=progress,
-                        unit_bytes=unit_bytes)
+                        unit_bytes=unit_bytes, only_files=only_files)
     partial = execution.partial
     samples = finalise(plan, partial)
     seconds = time.perf_counter() - t0
     provenance = _provenance(plan, partial, samples, started, seconds)
     provenance["execution"] = execution.record()
     provenance["skipped"] = list(execution.skipped)
-    result = RunResult(samples, provenance, None, dict(partial.seconds))
+    if part is not None:
+        provenance["part"] = {"index": part[0], "of": part[1]}
+    result = RunResult(samples, provenance, None, dict(partial.seconds), partial)
     target = Path(out) if out is not None else cfg.output.directory
     if target is not None:
         from evtkin.run.outputs import write_outputs
