@@ -180,7 +180,7 @@ def test_deformed_tail_detected_and_unchanged_distribution_not() -> None:
     assert rows[0]["p_value"] < 1e-4
     assert rows[1]["histogram"] == "pt_lep"
     assert rows[1]["p_value"] > 0.01
-    assert rows[0]["method"] == "WW"
+    assert rows[0]["method"] == "weighted vs weighted"
     assert rows[0]["mode"] == "shape"
     # ratio in the last bins is above one (the deformation grows with the mass)
     c = cs.entries[0].comparisons[0]
@@ -345,3 +345,38 @@ def test_compare_results_and_command_on_folders(tmp_path: Path) -> None:
     assert (out / "plots" / "pt_lep.png").is_file()
     assert not (out / "report.html").exists()
     assert json.loads((out / "summary.json").read_text())["summary"][0]["mode"] == "absolute"
+
+
+def test_no_histogram_in_common_is_an_error() -> None:
+    from evtkin.errors import ResultsError
+
+    a = make_results(make_sample("standard", 30, 0.0))
+    b = make_results(make_sample("standard", 31, 0.0))
+    b.samples["standard"].histograms = {"other": b.samples["standard"].histograms["pt_lep"]}
+    with pytest.raises(ResultsError, match="nothing to compare"):
+        compare_loaded([a, b], ["a", "b"])
+
+
+def test_report_says_each_note_once_and_lists_merged_bins() -> None:
+    from evtkin.output.report import render_compare_report
+
+    a = make_results(make_sample("standard", 40, 0.0, n=600))
+    b = make_results(make_sample("standard", 41, 0.0, n=600))
+    cs = compare_loaded([a, b], ["a", "b"], low_content="merge", min_entries=40)
+    rows = summary_rows(cs)
+    assert all(r["method"] == "weighted vs weighted" for r in rows)
+    merged = [r for r in rows if r["bins_merged"]]
+    assert merged
+    assert all(r["merged"] for r in merged)
+    # the merged ranges are x ranges of the histogram's own edges
+    lo, hi = merged[0]["merged"].split(";")[0].split("-")
+    assert float(lo) in MASS_EDGES.tolist() + PT_EDGES.tolist()
+    assert float(hi) in MASS_EDGES.tolist() + PT_EDGES.tolist()
+    assert "merged bins of" in summary_text(cs)
+    page = render_compare_report(cs)
+    shared = "absolute: equal expected content per bin, X² = Σ (A-B)²/(σ²A+σ²B)"
+    assert all(shared in r["notes"] for r in rows)
+    assert len(rows) > 1
+    assert page.count(shared) == 1
+    assert "weighted vs weighted" in page
+    assert ">WW<" not in page

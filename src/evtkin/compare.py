@@ -5,8 +5,10 @@ Everything here works on plain numpy arrays of bin contents (Σw) and variances 
 χ² tests (N. D. Gagunashvili, "Chi-square tests for comparing weighted histograms",
 NIM A 614 (2010) 287, arXiv:0905.4221; formulas as in the project's REFERENCES §2.9):
 
-* ``WW`` two weighted histograms, ``UW`` one unweighted (counts) against one weighted,
-  ``UU`` two unweighted (Pearson's test of a 2 x m contingency table).
+* "weighted vs weighted" (code ``WW``) two weighted histograms, "unweighted vs weighted" (``UW``)
+  one unweighted (counts) against one weighted, "unweighted vs unweighted" (``UU``) two unweighted
+  (Pearson's test of a 2 x m contingency table). Results and every output name the test in
+  words (:data:`METHOD_NAMES`); the codes are accepted as input.
 
 Two modes:
 
@@ -23,18 +25,25 @@ Two modes:
 Bin handling (the tests assume enough content per bin; the χ² distribution is asymptotic):
 
 1. bins empty in *both* histograms are skipped, each reducing ndf by one;
-2. with ``low_content="merge"`` (default) adjacent bins are merged, left to right, until every group
+2. with ``low_content="merge"`` adjacent bins are merged, left to right, until every group
    holds at least ``min_entries`` effective entries in *both* histograms (effective entries
    (Σw)²/Σw² for weighted, n for counts; common practice, after Cochran's rule of thumb of at least
    five expected entries per class); an unfinished last group joins the previous one;
-3. with ``low_content="flag"`` bins are kept as they are and the low ones are listed in the result;
+3. with ``low_content="flag"`` (default) bins are kept as they are and the low ones are listed in
+   the result;
    an empty bin of a weighted histogram facing content in the other one then gets the variance of
    one event of typical weight (Σw²/Σw of that histogram), said in the notes.
 ``low_content="keep"`` does the same as ``flag`` without the listing in the notes.
+
+p-values: ``P(χ² ≥ X² | ndf) = Q(ndf/2, X²/2)``, the regularised upper incomplete gamma function.
+Where it is below the smallest positive double, :attr:`Chi2Result.p_value` is 0 and
+:attr:`Chi2Result.log10_p` still holds log10 p, from the continued fraction of Γ(a, x)
+(Abramowitz & Stegun 6.5.31), see :func:`log10_chi2_sf`.
 """
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
@@ -53,6 +62,9 @@ __all__ = [
     "compare_histograms",
     "is_unweighted",
     "kolmogorov_distance",
+    "log10_chi2_sf",
+    "log10_gammaincc",
+    "p_text",
     "pull",
     "ratio",
     "unit_area",
@@ -61,6 +73,14 @@ __all__ = [
 Mode = Literal["shape", "absolute"]
 Method = Literal["auto", "WW", "UW", "UU"]
 LowContent = Literal["merge", "flag", "keep"]
+
+#: the three homogeneity tests in words, as every output names them
+METHOD_NAMES: dict[str, str] = {
+    "WW": "weighted vs weighted",
+    "UW": "unweighted vs weighted",
+    "UU": "unweighted vs unweighted",
+}
+_METHOD_CODES = {v: k for k, v in METHOD_NAMES.items()}
 
 FArray = NDArray[np.float64]
 
@@ -166,6 +186,8 @@ class Chi2Result:
     ``skipped_bins``: input indices empty in both histograms; ``merged_bins``: groups of input
     indices that were merged (only groups of two or more); ``low_content_bins``: indices under
     ``min_entries`` kept as they are (``flag`` mode). ``n_used``: (merged) bins in the statistic.
+    ``method``: the test in words (:data:`METHOD_NAMES`). ``log10_p``: log10 of the p-value, finite
+    also where ``p_value`` underflows to 0.
     """
 
     statistic: float
@@ -178,12 +200,19 @@ class Chi2Result:
     merged_bins: tuple[tuple[int, ...], ...] = ()
     low_content_bins: tuple[int, ...] = ()
     notes: tuple[str, ...] = ()
+    log10_p: float = float("nan")
+
+    @property
+    def p_text(self) -> str:
+        """The p-value for people: ``0.0123``, or ``10^-412.3`` where the double underflows."""
+        return p_text(self.p_value, self.log10_p)
 
     def to_dict(self) -> dict[str, Any]:
         return {
             "statistic": _num(self.statistic),
             "ndf": self.ndf,
             "p_value": _num(self.p_value),
+            "log10_p": _num(self.log10_p),
             "mode": self.mode,
             "method": self.method,
             "n_used": self.n_used,
@@ -196,6 +225,65 @@ class Chi2Result:
 
 def _num(x: float) -> float | None:
     return float(x) if np.isfinite(x) else None
+
+
+_TINY = 1e-300
+
+
+def log10_gammaincc(a: float, x: float) -> float:
+    """log10 Q(a, x) = log10 [Γ(a, x)/Γ(a)], finite far below the smallest double.
+
+    For x > a + 1: Γ(a, x) = e^(-x) x^a · 1/(x+ (1-a)/(1+ 1/(x+ (2-a)/(1+ 2/(x+ ...)))))
+    (Abramowitz & Stegun 6.5.31), evaluated in its even contraction
+    1/(x+1-a - 1(1-a)/(x+3-a - 2(2-a)/(x+5-a - ...))) by the modified Lentz method. Below, Q is
+    not small (no underflow) and scipy's ``gammaincc`` is used.
+    """
+    from scipy import special
+
+    if not (a > 0 and x >= 0) or not (math.isfinite(a) and math.isfinite(x)):
+        return float("nan")
+    if x < a + 1.0:
+        return math.log10(float(special.gammaincc(a, x)))
+    b = x + 1.0 - a
+    c = 1.0 / _TINY
+    d = 1.0 / b
+    h = d
+    for i in range(1, 100_000):
+        an = -i * (i - a)
+        b += 2.0
+        d = an * d + b
+        d = _TINY if abs(d) < _TINY else d
+        c = b + an / c
+        c = _TINY if abs(c) < _TINY else c
+        d = 1.0 / d
+        delta = d * c
+        h *= delta
+        if abs(delta - 1.0) < 1e-16:
+            break
+    ln_q = -x + a * math.log(x) + math.log(h) - math.lgamma(a)
+    return ln_q / math.log(10.0)
+
+
+def log10_chi2_sf(statistic: float, ndf: int) -> float:
+    """log10 P(χ²_ndf ≥ statistic) = log10 Q(ndf/2, statistic/2) (:func:`log10_gammaincc`)."""
+    if ndf <= 0 or not math.isfinite(statistic):
+        return float("nan")
+    if statistic <= 0:
+        return 0.0
+    return log10_gammaincc(0.5 * ndf, 0.5 * statistic)
+
+
+def p_text(p: float, log10_p: float = float("nan")) -> str:
+    """A p-value as text: ``0.0123``, or ``5e-413`` from log10 p where the double is 0."""
+    if math.isfinite(p) and p > 0:
+        return f"{p:.3g}"
+    if math.isfinite(log10_p):
+        e = math.floor(log10_p)
+        m = 10.0 ** (log10_p - e)
+        if round(m, 1) >= 10.0:
+            m, e = m / 10.0, e + 1
+        return f"{m:.2g}e{e}"
+    return "nan" if not math.isfinite(p) else f"{p:.3g}"
 
 
 def is_unweighted(values: ArrayLike, variances: ArrayLike) -> bool:
@@ -268,7 +356,7 @@ def chi2_weighted(
     *,
     mode: Mode = "shape",
     method: Method = "auto",
-    low_content: LowContent = "merge",
+    low_content: LowContent = "flag",
     min_entries: float = 5.0,
 ) -> Chi2Result:
     """χ² comparison of two histograms given bin contents ``w`` (Σw) and variances ``s`` (Σw²).
@@ -291,10 +379,12 @@ def chi2_weighted(
         raise ValueError("bin values must be finite")
 
     u1, u2 = is_unweighted(a1, v1), is_unweighted(a2, v2)
+    method = _METHOD_CODES.get(method, method)  # type: ignore[assignment]
     if method == "auto":
         method = "UU" if (u1 and u2) else ("UW" if (u1 or u2) else "WW")
     if method not in ("WW", "UW", "UU"):
-        raise ValueError(f"method: expected 'auto', 'WW', 'UW' or 'UU', got {method!r}")
+        raise ValueError(f"method: expected 'auto', 'WW', 'UW' or 'UU' (or the test's name in "
+                         f"words), got {method!r}")
     swapped = False
     if method == "UW" and not u1:
         # the statistic is symmetric in the roles; put the counts first
@@ -306,7 +396,7 @@ def chi2_weighted(
 
     notes: list[str] = []
     if swapped:
-        notes.append("UW: the second histogram is the unweighted one")
+        notes.append("unweighted vs weighted: the second histogram is the unweighted one")
     if mode == "shape":
         notes.append("shape-only: homogeneity test, totals free (ndf = bins used - 1)")
     else:
@@ -348,18 +438,24 @@ def chi2_weighted(
     def result(stat: float, extra: str | None = None) -> Chi2Result:
         if extra:
             notes.append(extra)
-        p = float(stats.chi2.sf(stat, ndf)) if (ndf > 0 and np.isfinite(stat)) else float("nan")
+        ok = ndf > 0 and np.isfinite(stat)
+        p = float(stats.chi2.sf(stat, ndf)) if ok else float("nan")
+        if ok and p >= 1e-300:
+            lp = math.log10(p)
+        else:
+            lp = log10_chi2_sf(stat, ndf) if ok else float("nan")
         return Chi2Result(
             statistic=float(stat) if ndf > 0 else float("nan"),
             ndf=ndf,
             p_value=p,
             mode=mode,
-            method=method,
+            method=METHOD_NAMES[method],
             n_used=n_used,
             skipped_bins=skipped,
             merged_bins=merged,
             low_content_bins=low,
             notes=tuple(notes),
+            log10_p=lp,
         )
 
     if ndf <= 0:
@@ -608,9 +704,9 @@ def compare_histograms(
     *,
     shape_only: bool = False,
     with_band: bool = False,
-    include_flow: bool = True,
+    include_flow: bool = False,
     method: Method = "auto",
-    low_content: LowContent = "merge",
+    low_content: LowContent = "flag",
     min_entries: float = 5.0,
     name: str = "",
     labels: Sequence[str] = ("A", "B"),
@@ -620,7 +716,8 @@ def compare_histograms(
     Both χ² modes and the Kolmogorov distance are always computed; ``shape_only`` selects which χ²
     is the headline (:attr:`HistComparison.chi2`) and whether the per-bin arrays are unit-area
     normalised. ``with_band`` adds the reference's band (if any) to the pull in quadrature.
-    ``include_flow`` puts under/overflow bins (when stored) into the tests.
+    ``include_flow`` puts under/overflow bins (when stored) into the tests (default: the in-range
+    bins only).
     """
     a = as_hist_data(h_a, name=name, label=labels[0])
     b = as_hist_data(h_b, name=name, label=labels[1])

@@ -56,13 +56,19 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         type=float,
         default=5.0,
         metavar="N",
-        help="effective entries per bin below which bins are merged (default: 5)",
+        help="effective entries per bin below which a bin counts as low-content (default: 5)",
     )
     p.add_argument(
         "--low-content",
-        choices=("merge", "flag"),
-        default="merge",
-        help="merge adjacent low-content bins (default) or only flag them",
+        choices=("flag", "merge"),
+        default="flag",
+        help="keep low-content bins and list them in the notes (default), or merge adjacent "
+        "ones until each group reaches --min-entries (the summary lists the merged bins)",
+    )
+    p.add_argument(
+        "--with-flow",
+        action="store_true",
+        help="include the under- and overflow bins in the χ² tests (default: in-range bins)",
     )
     p.add_argument("--no-report", action="store_true", help="do not write report.html")
     p.add_argument(
@@ -97,6 +103,7 @@ def run(args: argparse.Namespace) -> int:
         histograms=args.hists,
         min_entries=args.min_entries,
         low_content=args.low_content,
+        with_flow=args.with_flow,
         report=not args.no_report,
         workers=args.jobs if args.jobs else available_cores(),
     )

@@ -31,7 +31,7 @@ from typing import Any
 
 import numpy as np
 
-from evtkin.compare import HistComparison, HistData, compare_histograms
+from evtkin.compare import HistComparison, HistData, compare_histograms, p_text
 from evtkin.errors import ResultsError
 from evtkin.output.drawing import Task, draw_all
 from evtkin.output.plots import display_label
@@ -56,12 +56,14 @@ SUMMARY_COLUMNS = [
     "chi2",
     "ndf",
     "p_value",
+    "log10_p",
     "p_shape",
     "p_absolute",
     "ks_distance",
     "ks_p_approx",
     "bins_skipped",
     "bins_merged",
+    "merged",
     "notes",
 ]
 
@@ -256,11 +258,14 @@ def compare_loaded(
     shape_only: bool = False,
     with_bands: bool = False,
     min_entries: float = 5.0,
-    low_content: str = "merge",
+    low_content: str = "flag",
+    with_flow: bool = False,
 ) -> ComparisonSet:
     """Compare loaded results (objects shaped like ``evtkin.output.tables.Results``).
 
     ``pair=(x, y)`` compares histogram ``y`` against ``x`` inside each selected sample instead.
+    The χ² tests use the in-range bins unless ``with_flow``; low-content bins are kept and
+    flagged unless ``low_content="merge"``. No histogram in common is an error.
     """
     folders = (
         list(folders) if folders is not None else [f"input{i + 1}" for i in range(len(results))]
@@ -271,6 +276,7 @@ def compare_loaded(
         "with_band": with_bands,
         "min_entries": min_entries,
         "low_content": low_content,
+        "include_flow": with_flow,
     }
     entries: list[ComparisonEntry] = []
     skipped: list[str] = []
@@ -306,6 +312,11 @@ def compare_loaded(
                 skipped.append(f"{prefix}{h}: {why}")
                 continue
             entries.append(_entry(f"{prefix}{h}", group, hrs, kw))
+    if not entries:
+        why = "; ".join(sorted(skipped)) or "the inputs hold no histograms"
+        raise ResultsError(
+            f"nothing to compare: no 1-D histogram with the same binning in every input ({why})"
+        )
     note = next((s.note for s in all_sources if s.note), "")
     return ComparisonSet(all_sources, entries, shape_only, with_bands, note, sorted(skipped))
 
@@ -526,16 +537,31 @@ def summary_rows(cs: ComparisonSet) -> list[dict[str, Any]]:
                 "chi2": chi.statistic,
                 "ndf": chi.ndf,
                 "p_value": chi.p_value,
+                "log10_p": chi.log10_p,
                 "p_shape": c.chi2_shape.p_value,
                 "p_absolute": c.chi2_absolute.p_value,
                 "ks_distance": c.ks.distance,
                 "ks_p_approx": c.ks.p_value_approx,
                 "bins_skipped": len(chi.skipped_bins),
                 "bins_merged": sum(len(g) for g in chi.merged_bins),
+                "merged": merged_text(c, chi.merged_bins),
                 "notes": "; ".join(dict.fromkeys((*chi.notes, *c.notes))),
             }
         )
     return rows
+
+
+def merged_text(c: HistComparison, groups: Sequence[Sequence[int]]) -> str:
+    """The merged bin groups as x ranges: ``"60-68; 112-120"`` (empty when nothing merged).
+
+    Group indices refer to the bins the test used: the in-range bins, or with the flow bins
+    included, index 0 = underflow."""
+    if not groups:
+        return ""
+    with_flow = any("under/overflow" in n for n in c.notes)
+    lo = np.concatenate([[-np.inf], c.edges]) if with_flow else c.edges[:-1]
+    hi = np.concatenate([c.edges, [np.inf]]) if with_flow else c.edges[1:]
+    return "; ".join(f"{lo[g[0]]:g}-{hi[g[-1]]:g}" for g in groups)
 
 
 def _fmt(v: Any) -> str:
@@ -546,8 +572,9 @@ def _fmt(v: Any) -> str:
 
 def summary_text(cs: ComparisonSet) -> str:
     """Aligned text table of :func:`summary_rows` (without the notes column)."""
-    cols = [c for c in SUMMARY_COLUMNS if c != "notes"]
-    rows = [[_fmt(r[c]) for c in cols] for r in summary_rows(cs)]
+    cols = [c for c in SUMMARY_COLUMNS if c not in ("notes", "log10_p", "merged")]
+    rows = [[p_text(r[c], r["log10_p"]) if c == "p_value" else _fmt(r[c]) for c in cols]
+            for r in summary_rows(cs)]
     widths = [max([len(c)] + [len(r[i]) for r in rows]) for i, c in enumerate(cols)]
     lines = ["  ".join(c.ljust(w) for c, w in zip(cols, widths, strict=True)).rstrip()]
     lines.append("  ".join("-" * w for w in widths))
@@ -556,7 +583,9 @@ def summary_text(cs: ComparisonSet) -> str:
     head = [f"# evtkin comparison, {mode}; reference: {cs.sources[0].label if cs.sources else '-'}"]
     if cs.note:
         head.append(f"# {cs.note}")
-    tail = [f"# skipped: {s}" for s in cs.skipped]
+    tail = [f"# merged bins of {r['histogram']} ({r['other']}): {r['merged']}"
+            for r in summary_rows(cs) if r["merged"]]
+    tail += [f"# skipped: {s}" for s in cs.skipped]
     return "\n".join(head + lines + tail) + "\n"
 
 
@@ -627,7 +656,8 @@ def compare_results(
     pair: tuple[str, str] | None = None,
     histograms: Sequence[str] | None = None,
     min_entries: float = 5.0,
-    low_content: str = "merge",
+    low_content: str = "flag",
+    with_flow: bool = False,
     report: bool = True,
     workers: int = 1,
 ) -> ComparisonSet:
@@ -652,6 +682,7 @@ def compare_results(
         with_bands=with_bands,
         min_entries=min_entries,
         low_content=low_content,
+        with_flow=with_flow,
     )
     outp = Path(out)
     outp.mkdir(parents=True, exist_ok=True)

@@ -129,6 +129,7 @@ def _anchor(name: str) -> str:
 
 def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
     """HTML text of the comparison report (``cs`` is a ``ComparisonSet``)."""
+    from evtkin.compare import p_text
     from evtkin.output.compare_plots import plot_comparison, summary_rows
 
     body: list[str] = []
@@ -159,6 +160,14 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
         "the Kolmogorov p-value is approximate (effective entries, binned data).</p>"
     )
     rows = summary_rows(cs)
+    # each note once: numbered below the table, the rows refer to the numbers
+    note_ids: dict[str, int] = {}
+    row_notes: list[list[int]] = []
+    for r in rows:
+        ids = []
+        for n in filter(None, (x.strip() for x in str(r["notes"]).split("; "))):
+            ids.append(note_ids.setdefault(n, len(note_ids) + 1))
+        row_notes.append(ids)
     body.append("<h2>Summary, smallest p-value first</h2>")
     body.append(
         _table(
@@ -183,15 +192,16 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
                     _e(r["method"]),
                     _num(r["chi2"]),
                     _num(r["ndf"]),
-                    _num(r["p_value"], ".3g"),
+                    _e(p_text(r["p_value"], r["log10_p"])),
                     _num(r["p_shape"], ".3g"),
                     _num(r["p_absolute"], ".3g"),
                     _num(r["ks_distance"], ".3g"),
                     _num(r["ks_p_approx"], ".3g"),
-                    _num(r["bins_merged"]),
-                    f'<span class="small">{_e(r["notes"])}</span>',
+                    _e(r["merged"]) or "–",
+                    '<span class="small">'
+                    + ", ".join(f'<a href="#note{i}">{i}</a>' for i in ids) + "</span>",
                 ]
-                for r in rows
+                for r, ids in zip(rows, row_notes, strict=True)
             ],
             left=3,
             row_class=[
@@ -200,6 +210,10 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
             ],
         )
     )
+    if note_ids:
+        body.append("<p class=small>Notes:</p><ol class=small>")
+        body += [f'<li id="note{i}">{_e(n)}</li>' for n, i in note_ids.items()]
+        body.append("</ol>")
     if cs.skipped:
         body.append("<p class=small>Not compared:</p><ul class=small>")
         body += [f"<li>{_e(s)}</li>" for s in cs.skipped]
@@ -211,7 +225,7 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
         body.append(f'<h3 id="{_anchor(e.name)}">{_e(e.name)}</h3>')
         stats_txt = "; ".join(
             f"{c.label_b}: χ²/ndf = {_num(c.chi2.statistic)}/{c.chi2.ndf}, "
-            f"p = {_num(c.chi2.p_value, '.3g')}"
+            f"p = {c.chi2.p_text}"
             for c in e.comparisons
         )
         body.append(f"<figure>{_img(png, e.name)}<figcaption>{_e(stats_txt)}</figcaption></figure>")
