@@ -109,6 +109,8 @@ _ROLES: dict[str, tuple[str, str, bool, str]] = {
     "variation_array": ("any", "iuf", False, "variation weights in one branch need a "
                         "fixed-size (or constant-length) array of numbers per event"),
     "integer": ("flat", "iu", True, "needs one integer per event"),
+    "slot": ("flat", "biuf", True, "a slot of a flat collection (slots = ...) needs one number "
+             "per event"),
     "vector": ("flat", "iuf", True, "a per-event vector coordinate needs one number per event"),
 }
 
@@ -137,6 +139,14 @@ def _needs(mapping: NtupleMapping, sel: Selection) -> list[_Need]:
     for name, extras in sel.collections.items():
         c = mapping.collections[name]
         base = f"{w}.collections.{name}"
+        if c.flat:
+            used = {**c.coords, **{f: v for f, v in c.fields.items()
+                                   if extras is None or f in extras}}
+            for fname, src in used.items():
+                if isinstance(src, str):
+                    key = f"{base}.{fname}" if fname in c.coords else f"{base}.fields.{fname}"
+                    out += [_Need(b, "slot", key) for b in c.slot_branches(src)]
+            continue
         for coord, src in c.coords.items():
             if isinstance(src, str):
                 out.append(_Need(src, "coord", f"{base}.{coord}"))
@@ -433,6 +443,8 @@ class _Builder:
         scale = self.m.scale
         wanted = dict(c.coords)
         wanted.update(c.fields if extras is None else {f: c.fields[f] for f in extras})
+        if c.flat:
+            return self._flat_collection(c, wanted, arrays, n)
         ref_branch: str | None = None
         ref_offsets: np.ndarray | None = None
         columns: dict[str, Any] = {}
@@ -470,6 +482,43 @@ class _Builder:
         record = ak.contents.RecordArray([columns[f] for f in order], order, length=total,
                                          parameters={"__record__": "Momentum4D"})
         return ak.contents.ListOffsetArray(ak.index.Index64(ref_offsets), record)
+
+
+    def _flat_collection(self, c: Any, wanted: Mapping[str, Any],
+                         arrays: Mapping[str, ak.Array], n: int) -> Any:
+        """One flat branch per slot and field → a jagged collection of the filled slots (in
+        slot order)."""
+        scale = self.m.scale
+        columns: dict[str, np.ndarray] = {}
+        for fname, src in wanted.items():
+            if not isinstance(src, str):
+                continue
+            x = np.stack([np.asarray(ak.to_numpy(arrays[b])) for b in c.slot_branches(src)],
+                         axis=1) if n else np.zeros((0, len(c.slots)))
+            if fname in c.coords:
+                x = x.astype(np.float64)
+                if fname in ENERGY_LIKE and scale != 1.0:
+                    x = x * scale
+            columns[fname] = x
+        ref = columns[c.presence]
+        with np.errstate(invalid="ignore"):
+            filled = np.isfinite(ref) & (ref > 0)
+        offsets = np.zeros(n + 1, dtype=np.int64)
+        np.cumsum(filled.sum(axis=1), out=offsets[1:])
+        total = int(offsets[-1])
+        contents = []
+        for fname, src in wanted.items():
+            if isinstance(src, str):
+                contents.append(ak.contents.NumpyArray(np.ascontiguousarray(columns[fname][filled])))
+            elif fname in c.coords:
+                contents.append(ak.contents.NumpyArray(
+                    np.full(total, float(src) * (scale if fname in ENERGY_LIKE else 1.0))))
+            else:
+                contents.append(ak.contents.NumpyArray(
+                    np.full(total, src, dtype=np.int64 if isinstance(src, int) else np.float64)))
+        record = ak.contents.RecordArray(contents, list(wanted), length=total,
+                                         parameters={"__record__": "Momentum4D"})
+        return ak.contents.ListOffsetArray(ak.index.Index64(offsets), record)
 
 
 # --------------------------------------------------------------------------- the reader

@@ -21,6 +21,13 @@ A mapping is built from a plain dict (the TOML table the config layer hands over
     [collections.jets.fields]        # extra per-object fields: name -> branch (or a number)
     btag = "Jet_btag"
 
+    [collections.muons]              # flat per-object branches mu1_pt, mu2_pt, ...: one
+    slots = 2                        # number per event and slot; ``{i}`` in a branch name is
+    pt = "mu{i}_pt"                  # the slot number (``slots = N``: 1..N, or a list of them)
+    eta = "mu{i}_eta"                # a slot holds an object when its pt (cartesian: energy)
+    phi = "mu{i}_phi"                # is a number > 0; empty slots (0, negative, NaN) are
+    mass = 0.1057                    # left out
+
     [vectors.met]                    # per-event transverse vectors: pt, phi or px, py
     pt = "MET_pt"
     phi = "MET_phi"
@@ -76,6 +83,22 @@ _VECTOR_NAMES = frozenset({
 _TOP_KEYS = ("tree", "units", "weight", "variation_weights", "variation_names", "event_number",
              "process_id", "collections", "vectors", "scalars")  # fmt: skip
 _UNITS = {"GeV": 1.0, "MeV": 1e-3}
+#: the placeholder for the slot number in the branch names of a flat collection
+SLOT = "{i}"
+
+
+def _slots(value: Any, where: str) -> tuple[int, ...]:
+    if isinstance(value, int) and not isinstance(value, bool):
+        if value < 1:
+            raise ConfigError(f"{where}: expected a number of slots >= 1, got {value}")
+        return tuple(range(1, value + 1))
+    if (isinstance(value, (list, tuple)) and value
+            and all(isinstance(v, int) and not isinstance(v, bool) and v >= 0 for v in value)):
+        if len(set(value)) != len(value):
+            raise ConfigError(f"{where}: a slot number is listed twice")
+        return tuple(int(v) for v in value)
+    raise ConfigError(f"{where}: expected a whole number N (slots 1..N) or a list of slot "
+                      f"numbers >= 0, got {value!r}")
 _NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 Source = str | float  # a branch name, or a constant
@@ -164,6 +187,22 @@ class CollectionMap:
     system: str  # "ptetaphim" or "cartesian"
     coords: dict[str, Source]
     fields: dict[str, Source] = field(default_factory=dict)
+    #: flat layout: the slot numbers put for ``{i}`` in each branch name (empty: jagged)
+    slots: tuple[int, ...] = ()
+
+    @property
+    def flat(self) -> bool:
+        """True for one flat branch per object slot (``mu1_pt``, ``mu2_pt``, ...)."""
+        return bool(self.slots)
+
+    @property
+    def presence(self) -> str:
+        """The coordinate that tells a filled slot (pt, or the energy for cartesian)."""
+        return "pt" if self.system == "ptetaphim" else "energy"
+
+    def slot_branches(self, src: str) -> list[str]:
+        """The branch of every slot for a flat source (``mu{i}_pt`` → ``mu1_pt``, ...)."""
+        return [src.replace(SLOT, str(k)) for k in self.slots]
 
     def branches(self, extras: Iterable[str] | None = None) -> dict[str, str]:
         """``{output field: branch}`` of the coordinates and the chosen extras (default all)."""
@@ -268,7 +307,8 @@ class NtupleMapping:
             claim(cname, key)
             ctab = _table(ctab, key)
             coord_keys = [k for s in _SYSTEMS_4D.values() for ks in s.values() for k in ks]
-            _unknown_keys(ctab, (*coord_keys, "fields"), key)
+            _unknown_keys(ctab, (*coord_keys, "fields", "slots"), key)
+            slots = _slots(ctab["slots"], f"{key}.slots") if "slots" in ctab else ()
             system, coords = _coordinates(ctab, _SYSTEMS_4D, key)
             extras: dict[str, Source] = {}
             for fname, src in _table(ctab.get("fields", {}), f"{key}.fields").items():
@@ -280,7 +320,20 @@ class NtupleMapping:
                         "name for an extra field"
                     )
                 extras[fname] = _branch_or_number(src, fkey)
-            collections[cname] = CollectionMap(cname, system, coords, extras)
+            for what, sources in (("", coords), ("fields.", extras)):
+                for fname, src in sources.items():
+                    if not isinstance(src, str):
+                        continue
+                    if slots and SLOT not in src:
+                        raise ConfigError(
+                            f"{key}.{what}{fname}: {src!r} has no {SLOT} for the slot number; "
+                            f"with slots every branch name holds {SLOT} (e.g. 'mu{SLOT}_pt')")
+                    if not slots and SLOT in src:
+                        raise ConfigError(
+                            f"{key}.{what}{fname}: {src!r} holds {SLOT} but the collection "
+                            f"declares no slots (add e.g. slots = 2 for {src.replace(SLOT, '1')}"
+                            f", {src.replace(SLOT, '2')})")
+            collections[cname] = CollectionMap(cname, system, coords, extras, slots)
 
         vectors: dict[str, VectorMap] = {}
         for vname, vtab in _table(table.get("vectors", {}), f"{where}.vectors").items():
