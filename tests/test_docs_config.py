@@ -199,7 +199,7 @@ def test_error_example_gives_the_documented_message(tmp_path: Path, block: str,
 
 # --------------------------------------------------------------------------- keys
 
-# The keys src/evtkin/config.py accepts, per table. config.py keeps them inside its reader
+# The keys src/evtkin/config/ accepts, per table. The readers keep them inside their
 # functions (not as module-level constants), so they are listed here from reading it;
 # test_listed_keys_match_what_config_reads checks this list against what the reader asks for.
 KEYS: dict[str, tuple[str, ...]] = {
@@ -293,7 +293,7 @@ def test_listed_keys_match_what_config_reads(tmp_path: Path,
     assert set(seen) == set(KEYS), "the complete examples should use every kind of table"
     for table, known in seen.items():
         extra = known - set(KEYS[table])
-        assert not extra, f"config.py reads [{table}] keys {extra} not listed (nor documented)"
+        assert not extra, f"evtkin.config reads [{table}] keys {extra} not listed (nor documented)"
 
 
 def test_allowed_values_and_names_are_documented() -> None:

@@ -1,0 +1,134 @@
+"""Cross-reference checks on a read config: names used in expressions, composites, steps,
+quantities (no circles), and objects/missing pT/response histograms against the samples' formats."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+from evtkin.config.keylines import Path_
+from evtkin.config.schema import EVENT_FIELDS, AnalysisConfig
+from evtkin.config.tables import _check_name, _Ctx, _suggest
+from evtkin.expr import Expression, ExpressionError
+
+
+def _check_expression_names(ctx: _Ctx, path: Path_, expr: Expression,
+                            known: Mapping[str, str]) -> None:
+    for name, col in expr.names.items():
+        if name not in known:
+            close = _suggest(name, known)
+            hint = f"; did you mean {close!r}?" if close else ""
+            exc = ExpressionError(f"unknown name {name!r}{hint}", expr.text, col)
+            raise ctx._expr_error(path, exc)
+
+
+def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    known = cfg.names()
+    collections = [*list(cfg.objects), "particles"]
+    for name, c in cfg.composites.items():
+        if c.build == "pair":
+            for i, inp in enumerate(c.inputs):
+                key: Path_ = ("composites", name, "of") + ((i,) if len(c.inputs) > 1 else ())
+                _check_name(ctx, key, inp, collections, "object collection")
+        elif c.build == "leptonic_w":
+            _check_name(ctx, ("composites", name, "lepton"), c.inputs[0], collections,
+                        "object collection")
+            _check_met(ctx, cfg, ("composites", name, "missing_pt"), c.inputs[1])
+        else:
+            _check_name(ctx, ("composites", name, "lepton"), c.inputs[0], collections,
+                        "object collection")
+            _check_name(ctx, ("composites", name, "jets"), c.inputs[1], collections,
+                        "object collection")
+            _check_met(ctx, cfg, ("composites", name, "missing_pt"), c.inputs[2])
+    for i, step in enumerate(cfg.steps):
+        _check_expression_names(ctx, ("step", i, "require"), step.require, known)
+    for name, q in cfg.quantities.items():
+        if name in cfg.objects or name in cfg.composites or name in EVENT_FIELDS:
+            raise ctx.error(("quantities", name), f"{name!r} is already defined elsewhere")
+        _check_expression_names(ctx, ("quantities", name), q, known)
+    for name, h in cfg.histograms.items():
+        if h.normalise == "events":
+            for sname in h.samples or tuple(cfg.samples):
+                if cfg.samples[sname].luminosity_fb is None:
+                    raise ctx.error(
+                        ("histograms", name, "normalise"),
+                        f"'events' needs a luminosity: set luminosity_fb in [analysis] or in "
+                        f"[samples.{sname}]",
+                    )
+        for axis_key, axis in zip(("x", "y"), h.axes, strict=False):
+            _check_expression_names(ctx, ("histograms", name, axis_key, "value"), axis.value,
+                                    known)
+    # quantities may use other quantities, but not in a circle
+    state: dict[str, int] = {}
+
+    def visit(q: str, trail: list[str]) -> None:
+        if state.get(q) == 2:
+            return
+        if state.get(q) == 1:
+            cycle = " → ".join([*trail[trail.index(q):], q])
+            raise ctx.error(("quantities", q), f"quantities refer to each other: {cycle}")
+        state[q] = 1
+        for n in cfg.quantities[q].names:
+            if n in cfg.quantities:
+                visit(n, [*trail, q])
+        state[q] = 2
+
+    for qname in cfg.quantities:
+        visit(qname, [])
+
+
+def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    """Objects, missing pT and response histograms against the samples' formats and mappings."""
+    from evtkin.events import PARTICLE_FIELDS
+    from evtkin.expr import ATTRIBUTES
+
+    for oname, o in cfg.objects.items():
+        for other in o.isolation_objects:
+            _check_name(ctx, ("objects", oname, "isolation", "against_objects"), other,
+                        [n for n in cfg.objects if n != oname], "object collection")
+    for sname, spec in cfg.samples.items():
+        if spec.format != "root":
+            for oname, o in cfg.objects.items():
+                if not o.pdgids:
+                    raise ctx.error(("objects", oname), f"sample {sname!r} is an LHE file: give "
+                                    "particles = [...] (from = ... is for ROOT ntuples)")
+                if o.require is not None:
+                    _check_expression_names(ctx, ("objects", oname, "require"), o.require,
+                                            {n: "field" for n in (*PARTICLE_FIELDS, *ATTRIBUTES)})
+            continue
+        m = spec.input
+        for oname, o in cfg.objects.items():
+            if o.source is None:
+                raise ctx.error(("objects", oname), f"sample {sname!r} is a ROOT ntuple: give "
+                                "from = \"COLLECTION\" (a collection of its input mapping)")
+            for k, src in enumerate(o.source):
+                key: Path_ = ("objects", oname, "from") + ((k,) if len(o.source) > 1 else ())
+                _check_name(ctx, key, src, m.collections, f"collection of samples.{sname}.input")
+            if o.cluster_radius is not None:
+                raise ctx.error(("objects", oname, "clustering"), f"sample {sname!r} is a ROOT "
+                                "ntuple: its collections are already reconstructed objects")
+            if o.require is not None:
+                known = {n: "field" for src in o.source for n in
+                         (*m.collections[src].coords, *m.collections[src].fields, *ATTRIBUTES)}
+                _check_expression_names(ctx, ("objects", oname, "require"), o.require, known)
+        if cfg.missing_pt is not None:
+            if cfg.missing_pt.source is None:
+                raise ctx.error(("missing_pt",), f"sample {sname!r} is a ROOT ntuple: give "
+                                "from = \"VECTOR\" (a vector of its input mapping)")
+            _check_name(ctx, ("missing_pt", "from"), cfg.missing_pt.source, m.vectors,
+                        f"vector of samples.{sname}.input")
+    for hname, h in cfg.histograms.items():
+        if not h.response:
+            continue
+        if len(h.axes) != 1:
+            raise ctx.error(("histograms", hname, "response"), "response matrices are made for "
+                            "1-D histograms only")
+        with_truth = [n for n in (h.samples or cfg.samples) if cfg.samples[n].truth_files]
+        if not with_truth:
+            raise ctx.error(("histograms", hname, "response"), "no sample of this histogram has "
+                            "truth_files (generator-level events to match)")
+
+
+def _check_met(ctx: _Ctx, cfg: AnalysisConfig, path: Path_, name: str) -> None:
+    if cfg.missing_pt is None:
+        raise ctx.error(path, "needs a [missing_pt] section")
+    _check_name(ctx, path, name, [cfg.missing_pt.name], "missing-pT name")

@@ -1,0 +1,77 @@
+"""``[samples.NAME]``: files, labels, cross sections, formats, ROOT-ntuple mappings."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from evtkin.config.schema import SampleSpec
+from evtkin.config.tables import _fmt_path, _Table
+from evtkin.errors import ConfigError
+
+
+def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, SampleSpec]:
+    t = top.table("samples", required=True)
+    assert t is not None
+    if not t.data:
+        raise t.ctx.error(t.path, "declare at least one sample: [samples.NAME] with files = [...]")
+    out: dict[str, SampleSpec] = {}
+    for name in list(t.data):
+        s = t.table(name)
+        assert s is not None
+        files = s.strings("files")
+        if not files:
+            raise s.ctx.error((*s.path, "files"), "expected at least one file")
+        fmt = s.string("format", "lhe", choices=("lhe", "root"))
+        ntuple = _read_ntuple_sample(s, fmt, base)
+        out[name] = SampleSpec(
+            name=name,
+            files=tuple((base / f) if not Path(f).is_absolute() else Path(f) for f in files),
+            label=s.string("label", name),
+            cross_section_pb=s.number("cross_section_pb", None, positive=True),
+            luminosity_fb=s.number("luminosity_fb", lumi, positive=True),
+            toy=s.boolean("toy", False),
+            format=fmt,
+            **ntuple,
+        )
+        s.done()
+    t.done()
+    return out
+
+
+def _read_ntuple_sample(s: _Table, fmt: str, base: Path) -> dict[str, Any]:
+    """The ROOT-ntuple keys of a sample: ``input`` (the branch mapping), ``weights_give``,
+    ``truth_files`` (see :mod:`evtkin.run.ntuple_input`)."""
+    from evtkin.io.ntuple_mapping import NtupleMapping
+
+    if fmt != "root":
+        for key in ("input", "weights_give", "truth_files"):
+            if s.has(key):
+                raise s.ctx.error((*s.path, key), 'only for ROOT ntuples (format = "root")')
+        return {}
+    if not s.has("input"):
+        s._missing("input", ' for format = "root" (the branch mapping: [samples.NAME.input])')
+    raw = s.raw("input")
+    where = _fmt_path((*s.path, "input"))
+    try:
+        mapping = NtupleMapping.from_dict(raw, where=where)
+    except ConfigError as exc:
+        # the mapping names the dotted key first: find its line
+        msg = str(exc)
+        key = msg.split(":", 1)[0]
+        parts: list[str | int] = []
+        for piece in key.split("."):
+            head, _, idx = piece.partition("[")
+            parts.append(head)
+            if idx:
+                parts.append(int(idx.rstrip("]")))
+        line = s.ctx.lines.line(parts) if s.ctx.lines is not None else None
+        at = f"{s.ctx.source}:{line}" if line is not None else s.ctx.source
+        raise ConfigError(f"{at}: {msg}") from None
+    truth = s.strings("truth_files", ())
+    return {
+        "input": mapping,
+        "weights_give": s.string("weights_give", "mean", choices=("mean", "sum")),
+        "truth_files": tuple((base / f) if not Path(f).is_absolute() else Path(f)
+                             for f in truth),
+    }

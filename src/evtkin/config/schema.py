@@ -1,0 +1,196 @@
+"""The validated analysis description: frozen spec classes that the run, hists and output
+layers import, and the vocabularies (allowed names and values) the readers check against."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from evtkin.expr import Expression
+from evtkin.select.objects import PDG_CLASSES
+
+#: per-event names every expression may use besides the config's own names
+EVENT_FIELDS: dict[str, str] = {
+    "weight": "the event weight as written in the file (XWGTUP)",
+    "scale": "the event scale in GeV (SCALUP)",
+    "alpha_qcd": "the strong coupling of the event (AQCDUP)",
+    "alpha_qed": "the electromagnetic coupling of the event (AQEDUP)",
+    "process_id": "the process id of the event (IDPRUP)",
+    "particles": "every particle of the event record",
+}
+
+#: built-in particle classes (absolute PDG ids; both signs are taken), from the physics library
+PARTICLE_CLASSES: dict[str, tuple[int, ...]] = dict(PDG_CLASSES)
+
+#: histogram normalisations (names as in docs/results-format.md)
+NORMALISATIONS = ("raw", "xsec_per_bin", "events", "unit_area")
+
+COMPOSITE_BUILDS = ("pair", "leptonic_w", "ttbar_lepton_jets")
+OUTPUT_FORMATS = ("root", "json", "csv", "cutflow", "plots", "report")
+PLOT_FORMATS = ("png", "pdf", "svg")
+
+# PDG 2024 (Phys. Rev. D 110, 030001): m_W = 80.3692 GeV, m_t = 172.57 GeV
+DEFAULT_W_MASS = 80.3692
+DEFAULT_TOP_MASS = 172.57
+
+UNCERTAINTY_METHODS = ("envelope", "replicas_std", "replicas_68", "hessian_symmetric",
+                       "hessian_asymmetric", "quadrature")
+
+
+@dataclass(frozen=True)
+class SampleSpec:
+    name: str
+    files: tuple[Path, ...]
+    label: str
+    cross_section_pb: float | None = None
+    luminosity_fb: float | None = None
+    toy: bool = False
+    format: str = "lhe"
+    #: ROOT ntuples (``format = "root"``): the branch mapping, an
+    #: :class:`evtkin.io.ntuple_mapping.NtupleMapping` from ``[samples.NAME.input]``
+    input: Any = None
+    #: ROOT ntuples: how the event weights give σ: ``"mean"`` (σ = Σw/N, like IDWTUP ±4) or
+    #: ``"sum"`` (each weight is the event's contribution to σ in pb: σ = Σw)
+    weights_give: str = "mean"
+    #: generator-level (LHE) files with the same events, matched by the ntuple's event number
+    #: (0-based position in the LHE file): the truth level of response matrices
+    truth_files: tuple[Path, ...] = ()
+
+
+@dataclass(frozen=True)
+class ObjectSpec:
+    """One collection of objects built from the event record."""
+
+    name: str
+    pdgids: tuple[int, ...]  # absolute PDG ids
+    classes: tuple[str, ...]  # the names written in the config
+    status: tuple[int, ...] = (1,)
+    min_pt: float | None = None
+    max_abs_eta: float | None = None
+    max_abs_rapidity: float | None = None
+    from_decay_of: tuple[int, ...] = ()
+    isolation_against: tuple[int, ...] = ()
+    isolation_dr: float | None = None
+    isolation_min_pt: float = 0.0
+    cluster_radius: float | None = None
+    #: isolation against other defined objects (``against_objects``), e.g. for ntuple input
+    isolation_objects: tuple[str, ...] = ()
+    #: ROOT ntuples: the mapped collection(s) the objects come from (``from = "NAME"`` or a
+    #: list, e.g. ``["electrons", "muons"]``, merged keeping their common fields)
+    source: tuple[str, ...] | None = None
+    #: a condition on each object's fields (``require = "btag == 1 and iso < 0.1"``)
+    require: Expression | None = None
+
+
+@dataclass(frozen=True)
+class OverlapSpec:
+    remove: str
+    near: str
+    within_dr: float
+
+
+@dataclass(frozen=True)
+class MissingPtSpec:
+    name: str
+    pdgids: tuple[int, ...]
+    #: ROOT ntuples: the mapped per-event vector holding the missing pT (``from = "NAME"``)
+    source: str | None = None
+
+
+@dataclass(frozen=True)
+class StepSpec:
+    name: str
+    require: Expression
+
+
+@dataclass(frozen=True)
+class CompositeSpec:
+    """A composite object; ``options`` hold the build-specific, validated settings."""
+
+    name: str
+    build: str
+    inputs: tuple[str, ...]
+    options: Mapping[str, Any]
+
+
+@dataclass(frozen=True)
+class AxisDef:
+    value: Expression
+    edges: tuple[float, ...]
+    regular: bool
+    label: str
+    unit: str
+
+
+@dataclass(frozen=True)
+class HistogramSpec:
+    name: str
+    title: str
+    axes: tuple[AxisDef, ...]
+    normalise: str = "xsec_per_bin"
+    after: str | None = None  # histogram events that passed this step (default: all steps)
+    samples: tuple[str, ...] | None = None
+    #: fill a truth × reconstructed response matrix (samples with ``truth_files``)
+    response: bool = False
+
+
+@dataclass(frozen=True)
+class OutputSpec:
+    directory: Path | None = None
+    formats: tuple[str, ...] = OUTPUT_FORMATS
+    plot_formats: tuple[str, ...] = ("png", "pdf")
+
+
+@dataclass(frozen=True)
+class UncertaintySpec:
+    """One ``[uncertainties.NAME]`` recipe (resolved against the files by
+    :mod:`evtkin.hists.recipes`). ``lines`` maps a key (``""`` = the table) to its 1-based line."""
+
+    name: str
+    method: str
+    group: str | None = None
+    ids: tuple[str, ...] = ()
+    drop_anticorrelated: bool = False
+    of: tuple[str, ...] = ()
+    samples: tuple[str, ...] | None = None
+    lines: Mapping[str, int | None] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class AnalysisConfig:
+    """A validated analysis description (what :func:`load_config` returns)."""
+
+    name: str
+    description: str
+    note: str | None
+    source: str  # file name (or "<dict>")
+    text: str  # the config text as written (canonical JSON for dicts)
+    sha256: str
+    base_dir: Path
+    step_size: int | None
+    samples: dict[str, SampleSpec]
+    objects: dict[str, ObjectSpec]
+    overlap_removal: tuple[OverlapSpec, ...]
+    missing_pt: MissingPtSpec | None
+    steps: tuple[StepSpec, ...]
+    composites: dict[str, CompositeSpec]
+    quantities: dict[str, Expression]
+    histograms: dict[str, HistogramSpec]
+    output: OutputSpec
+    classes: dict[str, tuple[int, ...]] = field(default_factory=dict)
+    #: ``[uncertainties.NAME]`` recipes, in the order written
+    uncertainties: tuple[UncertaintySpec, ...] = ()
+    #: bands from the files' ``<weightgroup combine=...>`` (default: only if no recipe is given)
+    uncertainties_automatic: bool = True
+
+    def names(self) -> dict[str, str]:
+        """Every name an expression may use → what it is."""
+        out = {k: "event field" for k in EVENT_FIELDS}
+        out.update({k: "object collection" for k in self.objects})
+        if self.missing_pt is not None:
+            out[self.missing_pt.name] = "missing transverse momentum"
+        out.update({k: "composite" for k in self.composites})
+        out.update({k: "quantity" for k in self.quantities})
+        return out
