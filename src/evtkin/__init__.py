@@ -10,7 +10,14 @@ from __future__ import annotations
 import importlib
 from typing import TYPE_CHECKING, Any
 
-from evtkin.errors import ConfigError, EvtkinError, LHEError, NtupleError, ResultsError
+from evtkin.errors import (
+    ConfigError,
+    EvtkinError,
+    HepMCError,
+    LHEError,
+    NtupleError,
+    ResultsError,
+)
 
 __version__ = "0.1.0"
 
@@ -20,6 +27,10 @@ _LAZY: dict[str, str] = {
     "lhe_info": "evtkin.io.lhe_header",
     "LHEInfo": "evtkin.io.lhe_header",
     "write_lhe": "evtkin.io.lhe_write",
+    "read_hepmc": "evtkin.io.hepmc",
+    "hepmc_info": "evtkin.io.hepmc_header",
+    "HepMCInfo": "evtkin.io.hepmc_header",
+    "write_hepmc": "evtkin.io.hepmc_write",
     "run": "evtkin.run.pipeline",
     "compare_results": "evtkin.output.compare_plots",
     "load_results": "evtkin.output.tables",
@@ -28,20 +39,28 @@ _LAZY: dict[str, str] = {
 __all__ = [
     "ConfigError",
     "EvtkinError",
+    "HepMCError",
+    "HepMCInfo",
     "LHEError",
     "LHEInfo",
     "NtupleError",
     "ResultsError",
     "__version__",
     "compare_results",
+    "hepmc_info",
     "lhe_info",
     "load_results",
+    "read_hepmc",
     "read_lhe",
     "run",
+    "write_hepmc",
     "write_lhe",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover
+    from evtkin.io.hepmc import read_hepmc
+    from evtkin.io.hepmc_header import HepMCInfo, hepmc_info
+    from evtkin.io.hepmc_write import write_hepmc
     from evtkin.io.lhe import read_lhe
     from evtkin.io.lhe_header import LHEInfo, lhe_info
     from evtkin.io.lhe_write import write_lhe

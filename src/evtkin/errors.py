@@ -21,3 +21,7 @@ class NtupleError(EvtkinError, ValueError):
 
 class ResultsError(EvtkinError, ValueError):
     """A results folder is missing files or holds something evtkin did not write."""
+
+
+class HepMCError(EvtkinError, ValueError):
+    """A HepMC ASCII event file is malformed, truncated or not a HepMC file."""

@@ -1,0 +1,724 @@
+"""Streaming reader of HepMC ASCII event files: ``read_hepmc(path)`` yields awkward chunks.
+
+Pipeline (one run of :func:`read_hepmc`), as for LHE files (:mod:`evtkin.io.lhe`)::
+
+    reader thread              parse workers (1-2, nogil)        caller's thread
+    read/decompress  ------>   byte scanner -> columns    --->   chunks of exactly
+    4 MB buffers cut before    (compiled, or the Python          step_size events,
+    a line starting "E "       fallback), compacted              zero-copy awkward layout
+
+Each chunk is an awkward Array with one record per event: ``event_number`` (int64),
+``weight`` (the first weight; 1 for an event without weights), ``weights`` (regular
+``n x k``, columns in the order of ``hepmc_info(path).weight_names``), ``scale``,
+``alpha_qcd``, ``alpha_qed``, ``xsec_pb``, ``xsec_err_pb`` (float64, NaN where the file
+has none; in IO_GenEvent files the unset value -1 of scale and couplings reads as NaN),
+``particles`` (jagged ``Particle`` records, see :mod:`evtkin.events`: ``pdgid``,
+``status``, ``px``, ``py``, ``pz``, ``energy``, ``mass`` (the generated mass as written),
+``prod_vertex``, ``end_vertex``: 0-based indices into the same event's ``vertices``,
+-1 = none) and ``vertices`` (jagged records ``x``, ``y``, ``z``, ``t`` in mm (t as c*t),
+``status``). Momenta are converted from MEV to GeV and lengths from CM to mm.
+
+Chunk size: ``step_size`` events, or, by default, as many events as fit in about
+``CHUNK_TEXT_BYTES`` of text judged from the first buffer (showered events are large:
+a chunk of a 20 kB-per-event file then holds ~3 000 events and ~60 MB of columns), at
+most 100 000. Memory is the interpreter and libraries, a few buffers and their columns,
+and two chunks: flat in the file size.
+"""
+
+from __future__ import annotations
+
+import os
+import queue
+import threading
+import warnings
+from collections import deque
+from collections.abc import Callable, Iterator
+from concurrent.futures import Future, ThreadPoolExecutor
+from typing import Any, BinaryIO
+
+import awkward as ak
+import numpy as np
+
+from evtkin import events as _events
+from evtkin.errors import HepMCError
+from evtkin.io import hepmc_scan as c
+from evtkin.io.hepmc_header import (
+    FORM_NAMES,
+    TolerantStream,
+    _first_event_facts,
+    compression,
+    file_size,
+    open_hepmc,
+    open_stream,
+    read_block,
+)
+from evtkin.io.sources import Source, source_name
+
+__all__ = ["HepMCWarning", "hepmc_byte_ranges", "read_hepmc", "scanner_kind"]
+
+BUFFER_BYTES = 4 << 20
+CHUNK_TEXT_BYTES = 48 << 20
+MAX_AUTO_STEP = 100_000
+PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
+                   "px", "py", "pz", "energy", "mass")  # fmt: skip
+VERTEX_FIELDS = ("status", "x", "y", "z", "t")
+EVENT_FIELDS = ("weight", "scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb")
+_CUT = b"\nE "
+_events.register()  # the Particle behaviour of the particle records
+_MAX_LISTED = 20  # damaged events named in a warning
+
+
+class HepMCWarning(UserWarning):
+    """Something in a HepMC file was tolerated because ``strict=False``."""
+
+
+# ------------------------------------------------------------------ scanner choice
+
+_KERNEL: Callable[..., Any] | None = None
+_KIND: str | None = None
+
+
+def _kernel() -> tuple[Callable[..., Any], str]:
+    global _KERNEL, _KIND
+    if _KERNEL is None:
+        compiled = c.compiled_kernel()
+        if compiled is not None:
+            _KERNEL, _KIND = compiled, "numba"
+        else:
+            from evtkin.io.hepmc_fallback import scan_py
+
+            _KERNEL, _KIND = scan_py, "fallback"
+    assert _KERNEL is not None
+    assert _KIND is not None
+    return _KERNEL, _KIND
+
+
+def scanner_kind() -> str:
+    """``"numba"`` or ``"fallback"``: which scanner :func:`read_hepmc` uses."""
+    return _kernel()[1]
+
+
+# ------------------------------------------------------------------ one buffer
+
+
+class Parsed:
+    """The compacted columns of one buffer's events and what the scan reported."""
+
+    n_ev: int
+    n_done: int  # events complete before an error
+    ev_i: np.ndarray
+    ev_f: np.ndarray
+    wts: np.ndarray
+    p_off: np.ndarray
+    v_off: np.ndarray
+    p_i: np.ndarray
+    p_f: np.ndarray
+    v_i: np.ndarray
+    v_f: np.ndarray
+    status: int
+    pos: int  # relative
+    errpos: int
+    evstart: int
+    a: int
+    b: int
+    errs: np.ndarray  # lenient: (event start, resume, errpos, code, a, b), relative
+
+
+def scan_buffer(
+    kernel: Callable[..., Any], arr: np.ndarray, form: int, k: int, final: bool,
+    stop: int, lenient: bool,
+) -> Parsed:  # fmt: skip
+    """Scan one buffer of whole events into compacted columns (offsets relative)."""
+    cap = c.capacities(arr.shape[0])
+    ce, cp, cv = cap["events"], cap["particles"], cap["vertices"]
+    cfg = np.zeros(c.CFG_SIZE, np.int64)
+    cfg[c.CFG_FORM], cfg[c.CFG_K], cfg[c.CFG_FINAL] = form, k, int(final)
+    cfg[c.CFG_STOP], cfg[c.CFG_LENIENT] = min(stop, 1 << 62), int(lenient)
+    st = np.zeros(c.ST_SIZE, np.int64)
+    ev_i = np.empty((c.N_EVI, ce), np.int64)
+    ev_f = np.empty((c.N_EVF, ce), np.float64)
+    p_off = np.empty(ce + 1, np.int64)
+    v_off = np.empty(ce + 1, np.int64)
+    p_i = np.empty((c.N_PI, cp), np.int32)
+    p_f = np.empty((c.N_PF, cp), np.float64)
+    v_i = np.empty(cv, np.int32)
+    v_f = np.empty((c.N_VF, cv), np.float64)
+    wts = np.empty(max(min(cap["weights"], ce * k), 1), np.float64)
+    pscr = np.empty((3, cp), np.int64)
+    vscr = np.empty((4, cv), np.int64)
+    inl = np.empty(cap["incoming"], np.int64)
+    slow = np.empty((cap["slow"], 5), np.int64)
+    errs = np.empty((cap["errors"], 6), np.int64)
+    kernel(arr, cfg, st, ev_i, ev_f, p_off, v_off, p_i, p_f, v_i, v_f, wts, pscr, vscr, inl,
+           slow, errs)  # fmt: skip
+    out = Parsed()
+    n_ev, n_p, n_v = int(st[c.ST_EV]), int(st[c.ST_NP]), int(st[c.ST_NV])
+    out.status, out.pos = int(st[c.ST_STATUS]), int(st[c.ST_POS])
+    out.errpos, out.evstart = int(st[c.ST_ERRPOS]), int(st[c.ST_EVSTART])
+    out.a, out.b = int(st[c.ST_A]), int(st[c.ST_B])
+    out.errs = errs[: int(st[c.ST_NERR])].copy()
+    out.n_done = n_ev
+    if out.status >= c.ERR_LINE:
+        n_ev = n_p = n_v = 0
+    nslow = int(st[c.ST_NSLOW])
+    if nslow and n_ev:
+        c.fix_slow(arr, slow[:nslow], ev_f, p_f, v_f, wts)
+    out.n_ev = n_ev
+    out.ev_i = ev_i[:, :n_ev].copy()
+    out.ev_f = ev_f[:, :n_ev].copy()
+    out.wts = wts[: n_ev * k].reshape(n_ev, k).copy()
+    out.p_off = p_off[: n_ev + 1].copy()
+    out.v_off = v_off[: n_ev + 1].copy()
+    out.p_i = p_i[:, :n_p].copy()
+    out.p_f = p_f[:, :n_p].copy()
+    out.v_i = v_i[:n_v].copy()
+    out.v_f = v_f[:, :n_v].copy()
+    _finish_columns(out, form, k)
+    return out
+
+
+def _finish_columns(out: Parsed, form: int, k: int) -> None:
+    """Units to GeV and mm; the first weight; IO_GenEvent's unset -1 to NaN."""
+    n = out.n_ev
+    if n == 0:
+        return
+    flags = out.ev_i[1]
+    if np.any(flags & c.UNIT_MEV):
+        per_p = np.repeat(flags & c.UNIT_MEV, np.diff(out.p_off)).astype(bool)
+        out.p_f[:, per_p] /= 1000.0
+    if np.any(flags & c.UNIT_CM):
+        per_v = np.repeat(flags & c.UNIT_CM, np.diff(out.v_off)).astype(bool)
+        out.v_f[:, per_v] *= 10.0
+    out.ev_f[0] = out.wts[:, 0] if k > 0 else 1.0
+    if form == c.FORM_V2:
+        sub = out.ev_f[1:4]
+        sub[sub == -1.0] = np.nan
+
+
+# ------------------------------------------------------------------ chunks
+
+
+def _concat(parts: list[tuple[Parsed, int, int]], k: int) -> ak.Array:
+    """One chunk from events ``[a, b)`` of each parsed buffer, as an awkward Array."""
+    ev_i, ev_f, wts, p_i, p_f, v_i, v_f = [], [], [], [], [], [], []
+    p_counts, v_counts = [], []
+    for s, a, b in parts:
+        ev_i.append(s.ev_i[:, a:b])
+        ev_f.append(s.ev_f[:, a:b])
+        wts.append(s.wts[a:b])
+        pa, pb = int(s.p_off[a]), int(s.p_off[b])
+        va, vb = int(s.v_off[a]), int(s.v_off[b])
+        p_i.append(s.p_i[:, pa:pb])
+        p_f.append(s.p_f[:, pa:pb])
+        v_i.append(s.v_i[va:vb])
+        v_f.append(s.v_f[:, va:vb])
+        p_counts.append(np.diff(s.p_off[a : b + 1]))
+        v_counts.append(np.diff(s.v_off[a : b + 1]))
+
+    def cat(xs: list[np.ndarray], axis: int) -> np.ndarray:
+        return xs[0].copy() if len(xs) == 1 else np.concatenate(xs, axis=axis)
+
+    E_i, E_f, W = cat(ev_i, 1), cat(ev_f, 1), cat(wts, 0)
+    P_i, P_f, V_i, V_f = cat(p_i, 1), cat(p_f, 1), cat(v_i, 0), cat(v_f, 1)
+    n = E_i.shape[1]
+    p_off = np.zeros(n + 1, np.int64)
+    v_off = np.zeros(n + 1, np.int64)
+    np.cumsum(np.concatenate(p_counts), out=p_off[1:])
+    np.cumsum(np.concatenate(v_counts), out=v_off[1:])
+    C = ak.contents
+    pfields = [C.NumpyArray(np.ascontiguousarray(P_i[j])) for j in range(c.N_PI)]
+    pfields += [C.NumpyArray(np.ascontiguousarray(P_f[j])) for j in range(c.N_PF)]
+    particles = C.ListOffsetArray(
+        ak.index.Index64(p_off),
+        C.RecordArray(pfields, list(PARTICLE_FIELDS), parameters={"__record__": "Particle"}),
+    )
+    vfields = [C.NumpyArray(V_i)] + [C.NumpyArray(np.ascontiguousarray(V_f[j])) for j in range(4)]
+    vertices = C.ListOffsetArray(
+        ak.index.Index64(v_off),
+        C.RecordArray(vfields, list(VERTEX_FIELDS), length=int(v_off[-1])),
+    )
+    weights = C.RegularArray(C.NumpyArray(np.ascontiguousarray(W).reshape(-1)), k, zeros_length=n)
+    columns: list[Any] = [C.NumpyArray(np.ascontiguousarray(E_i[0]))]
+    columns += [C.NumpyArray(np.ascontiguousarray(E_f[j])) for j in range(c.N_EVF)]
+    columns += [weights, particles, vertices]
+    names = ["event_number", *EVENT_FIELDS, "weights", "particles", "vertices"]
+    return ak.Array(C.RecordArray(columns, names, length=n))
+
+
+# ------------------------------------------------------------------ buffers
+
+
+class _Buffers:
+    """Reads the event text into buffers that end before a line starting with ``E ``.
+
+    ``get()`` returns ``(base, array, final, error)`` in file order (``base``: absolute
+    decompressed offset of ``array[0]``; ``error``: a read failure that ended the stream
+    early, else None). With ``threaded`` the reading runs ahead in a thread.
+    """
+
+    def __init__(self, stream: TolerantStream | BinaryIO, first: bytes, base: int,
+                 source: Source, threaded: bool) -> None:  # fmt: skip
+        self.stream = stream
+        self.source = source
+        self.items = self._produce(first, base)
+        self.stop = threading.Event()
+        self.thread: threading.Thread | None = None
+        if threaded:
+            self.q: queue.Queue[Any] = queue.Queue(maxsize=2)
+            self.thread = threading.Thread(target=self._run, name="evtkin-hepmc-read",
+                                           daemon=True)  # fmt: skip
+            self.thread.start()
+
+    def _produce(self, first: bytes, base: int) -> Iterator[tuple[int, np.ndarray, bool, Any]]:
+        data = bytearray(first)
+        want = BUFFER_BYTES
+        while True:
+            error = None
+            eof = False
+            while len(data) < want:
+                block = self.stream.read(want - len(data))
+                if not block:
+                    eof = True
+                    error = getattr(self.stream, "error", None)
+                    break
+                data += block
+            if eof:
+                yield base, np.frombuffer(bytes(data), np.uint8), True, error
+                return
+            cut = data.rfind(_CUT, 1) + 1
+            if cut <= 0:  # one event larger than the buffer: read more
+                want = 2 * len(data)
+                continue
+            want = BUFFER_BYTES
+            out = np.frombuffer(bytes(data[:cut]), np.uint8)
+            del data[:cut]
+            yield base, out, False, None
+            base += cut
+
+    def _run(self) -> None:
+        try:
+            for item in self.items:
+                if not self._put(item):
+                    return
+        except BaseException as exc:
+            self._put(exc)
+
+    def _put(self, item: Any) -> bool:
+        while not self.stop.is_set():
+            try:
+                self.q.put(item, timeout=0.1)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def get(self) -> tuple[int, np.ndarray, bool, Any]:
+        if self.thread is None:
+            return next(self.items)
+        item = self.q.get()
+        if isinstance(item, BaseException):
+            raise item
+        return item  # type: ignore[no-any-return]
+
+    def close(self) -> None:
+        self.stop.set()
+        if self.thread is not None:
+            self.thread.join(timeout=5)
+        else:
+            self.items.close()  # type: ignore[attr-defined]
+        self.stream.close()
+
+
+class _Done:
+    def __init__(self, fn: Callable[..., Parsed], *args: Any) -> None:
+        self.fn, self.args = fn, args
+
+    def result(self) -> Parsed:
+        return self.fn(*self.args)
+
+    def cancel(self) -> bool:
+        return True
+
+
+# ------------------------------------------------------------------ byte ranges
+
+
+def _next_event(fh: BinaryIO, pos: int, limit: int) -> int:
+    """Offset of the first line start ``E `` at or after ``pos`` (before ``limit``), or -1."""
+    if pos == 0:
+        fh.seek(0)
+        if fh.read(2) == b"E ":
+            return 0
+    base = max(pos - 1, 0)
+    while base < limit:
+        fh.seek(base)
+        block = fh.read(min(1 << 20, limit - base + 2))
+        i = block.find(_CUT)
+        if i >= 0:
+            at = base + i + 1
+            return at if at < limit else -1
+        if len(block) < 3:
+            return -1
+        base += len(block) - 2
+    return -1
+
+
+def hepmc_byte_ranges(path: Source, parts: int) -> list[tuple[int, int]]:
+    """Split a plain HepMC file into about ``parts`` byte ranges of whole events (the first
+    starts at the first event line, each further one at the first event line after an
+    evenly spaced offset, the last ends at the end of the file)."""
+    from evtkin.io.hepmc_header import hepmc_info
+
+    if compression(path) is not None:
+        raise HepMCError(f"{source_name(path)}: compressed files cannot be split by byte ranges")
+    offset = hepmc_info(path).events_offset
+    size = file_size(path)
+    with open(path, "rb") as fh:
+        first = _next_event(fh, offset, size)
+        if first < 0:
+            return [(offset, size)]
+        starts = [first]
+        for j in range(1, max(1, int(parts))):
+            approx = first + ((size - first) * j) // max(1, int(parts))
+            if approx <= starts[-1]:
+                continue
+            nxt = _next_event(fh, approx, size)
+            if nxt < 0:
+                break
+            if nxt > starts[-1]:
+                starts.append(nxt)
+    return list(zip(starts, [*starts[1:], size], strict=True))
+
+
+# ------------------------------------------------------------------ public API
+
+
+def _line_at(source: Source, pos: int) -> int:
+    """1-based line of absolute decompressed offset ``pos``."""
+    lines = 1
+    done = 0
+    with open_stream(source) as fh:
+        while done < pos:
+            block = fh.read(min(1 << 22, pos - done))
+            if not block:
+                break
+            lines += block.count(b"\n")
+            done += len(block)
+    return lines
+
+
+def _lines_at(source: Source, positions: list[int]) -> list[int]:
+    """1-based lines of several sorted absolute offsets (one pass)."""
+    out: list[int] = []
+    lines = 1
+    done = 0
+    with open_stream(source) as fh:
+        for pos in positions:
+            while done < pos:
+                block = fh.read(min(1 << 22, pos - done))
+                if not block:
+                    break
+                lines += block.count(b"\n")
+                done += len(block)
+            out.append(lines)
+    return out
+
+
+_LAYOUT = {
+    (c.FORM_V3, "E"): "E event_number n_vertices n_particles [@ x y z t]",
+    (c.FORM_V3, "P"): "P id parent pdgid px py pz e m status",
+    (c.FORM_V3, "V"): "V id status [incoming,...] [@ x y z t]",
+    (c.FORM_V3, "W"): "W weight ...",
+    (c.FORM_V3, "A"): "A id name value",
+    (c.FORM_V2, "E"): "E number n_mpi scale alpha_qcd alpha_qed process_id signal_vertex "
+                      "n_vertices beam1 beam2 n_random [random ...] n_weights [weights ...]",
+    (c.FORM_V2, "V"): "V barcode id x y z ctau n_orphans n_out n_weights [weights ...]",
+    (c.FORM_V2, "P"): "P barcode pdgid px py pz e m status theta phi end_vertex n_flow "
+                      "[flow ...]",
+    (c.FORM_V3, "C"): "C cross_section error",
+    (c.FORM_V2, "C"): "C cross_section error",
+}  # fmt: skip
+
+
+def _describe(code: int, a: int, b: int, form: int, line: bytes) -> str:
+    """The message of a scan error."""
+    shown = line[:100].decode("utf-8", "replace").rstrip("\r")
+    kind = line[:1].decode("ascii", "replace")
+    if code == c.ERR_LINE:
+        layout = _LAYOUT.get((form, kind), "")
+        return f"malformed {kind} line {shown!r}" + (f" (expected: {layout})" if layout else "")
+    if code == c.ERR_UNEXPECTED:
+        return f"unexpected line in {FORM_NAMES[form]} event text: {shown!r}"
+    if code == c.ERR_COUNT_P:
+        return (f"the event line declares {a} particles but {b} P lines follow "
+                "(a count that disagrees with the lines)")  # fmt: skip
+    if code == c.ERR_COUNT_V:
+        return (f"the event line declares {a} vertices but the event has {b} "
+                "(a count that disagrees with the lines)")  # fmt: skip
+    if code == c.ERR_VERTEX_REF:
+        return f"{shown!r} points to vertex {a}, which does not exist in this event (above it)"
+    if code == c.ERR_PARTICLE_REF:
+        return f"{shown!r} refers to particle {a}, which does not exist in this event (above it)"
+    if code == c.ERR_DUP_ID:
+        return f"id {a} is given twice in this event: {shown!r}"
+    if code == c.ERR_WEIGHTS:
+        return f"the event holds {a} weights but the file declares {b}"
+    if code == c.ERR_UNIT:
+        return f"expected 'U GEV|MEV MM|CM', found {shown!r}"
+    if code == c.ERR_VCOUNT:
+        return (f"the vertex line declares {a} particles (orphans + outgoing) but {b} "
+                "P lines follow it")  # fmt: skip
+    if code == c.ERR_TWO_END:
+        return f"{shown!r} lists particle {a} as incoming, but it already ends in a vertex"
+    if code == c.ERR_LOOP:
+        return f"particle {a} ends in its own production vertex: {shown!r}"
+    return f"malformed event (code {code})"
+
+
+def _line_text(arr: np.ndarray, rel: int) -> bytes:
+    end = int(rel)
+    n = arr.shape[0]
+    while end < n and end - rel < 200 and arr[end] != 10:
+        end += 1
+    return bytes(arr[rel:end])
+
+
+def _default_threads(compressed: bool) -> int:
+    cores = os.cpu_count() or 1
+    return max(1, min(2, cores - 1 if compressed else cores))
+
+
+def read_hepmc(
+    source: Source,
+    *,
+    step_size: int | None = None,
+    strict: bool = True,
+    threads: int | None = None,
+    byte_range: tuple[int, int] | None = None,
+) -> Iterator[ak.Array]:
+    """Stream the events of a HepMC ASCII file (Asciiv3 or IO_GenEvent, plain, gzip, zstd,
+    bz2 or xz; all detected by content) as awkward Arrays of ``step_size`` events.
+
+    Every chunk holds exactly ``step_size`` events except the last. ``step_size=None``
+    (the default) takes as many events as fit in ~48 MB of text, judged from the first
+    4 MB read (at most 100 000). ``threads``: parse threads (default 2 where there are
+    cores for them, 1 for a compressed file on 2 cores) beside a thread that reads;
+    ``threads=0`` does everything in the caller's thread. ``byte_range=(start, stop)``
+    (plain files only) reads exactly the events whose ``E`` line starts in
+    ``[start, stop)`` (see :func:`hepmc_byte_ranges`).
+
+    Raises :class:`~evtkin.errors.HepMCError` naming the file and 1-based line for
+    malformed input. With ``strict=False`` a damaged event is skipped (reading resumes at
+    the next event line) and a :class:`HepMCWarning` gives the count and lines of what
+    was skipped; a file cut short yields its complete events and warns. Chunks yielded
+    before an error are complete and correct.
+    """
+    if step_size is not None and int(step_size) < 1:
+        raise ValueError(f"step_size must be >= 1, got {step_size}")
+    if byte_range is not None:
+        start, stop = (int(x) for x in byte_range)
+        if start < 0 or stop < start:
+            raise ValueError(
+                f"byte_range must be (start, stop) with 0 <= start <= stop, got {byte_range}"
+            )
+        kind = compression(source)
+        if kind is not None:
+            raise HepMCError(
+                f"{source_name(source)}: byte_range needs an uncompressed file, this one is "
+                f"{kind}-compressed"
+            )
+        byte_range = (start, stop)
+    if threads is None:
+        nthreads = _default_threads(compression(source) is not None)
+    else:
+        nthreads = int(threads)
+    if nthreads < 0:
+        raise ValueError(f"threads must be >= 0, got {threads}")
+    return _iterate(source, None if step_size is None else int(step_size), strict, nthreads,
+                    byte_range)  # fmt: skip
+
+
+def _weight_count(form: int, run: dict[str, Any], first: bytes) -> int:
+    names, nw, *_ = _first_event_facts(form, first[: 4 << 20])
+    if form == c.FORM_V3:
+        return len(run["names"]) if run["names"] else nw
+    return len(names) if names else nw
+
+
+def _iterate(
+    source: Source, step: int | None, strict: bool, threads: int,
+    byte_range: tuple[int, int] | None,
+) -> Iterator[ak.Array]:  # fmt: skip
+    name = source_name(source)
+    kernel, _ = _kernel()
+    stream, first, form, _version, run = open_hepmc(source)
+    offset = int(run["offset"])
+    stop_abs = 1 << 62
+    base = offset
+    if byte_range is not None:
+        stream.close()
+        with open(source, "rb") as fh:
+            fh.seek(offset)
+            first = fh.read(4 << 20)
+        k = _weight_count(form, run, first)
+        size = file_size(source)
+        start = max(byte_range[0], offset)
+        stop_abs = min(byte_range[1], size)
+        if start >= stop_abs:
+            return
+        with open(source, "rb") as fh:
+            begin = _next_event(fh, start, stop_abs)
+        if begin < 0:
+            return
+        plain = open(source, "rb")  # noqa: SIM115 - closed by the reader
+        plain.seek(begin)
+        stream = TolerantStream(plain, source, None)  # type: ignore[arg-type]
+        first, base = b"", begin
+        need_end = byte_range[1] >= size
+    else:
+        while len(first) < (1 << 20):  # enough of the first events for their facts
+            block = read_block(stream, 1 << 20, source)
+            if not block:
+                break
+            first += block
+        k = _weight_count(form, run, first)
+        need_end = True
+    reader = _Buffers(stream, first, base, source, threaded=threads > 0)
+    pool = (ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-hepmc-parse")
+            if threads > 0 else None)  # fmt: skip
+
+    def submit(arr: np.ndarray, b: int, final: bool) -> Future[Parsed] | _Done:
+        args = (kernel, arr, form, k, final, stop_abs - b, not strict)
+        if pool is None:
+            return _Done(scan_buffer, *args)
+        return pool.submit(scan_buffer, *args)
+
+    pending: deque[tuple[int, np.ndarray, bool, Any, Future[Parsed] | _Done]] = deque()
+    parts: list[tuple[Parsed, int, int]] = []
+    in_chunk = 0
+    n_seen = 0
+    skipped: list[tuple[int, int, str]] = []  # absolute start, resume, reason
+    n_skipped = 0
+    saw_end = False
+    stopped = False
+    problem: str | None = None
+    try:
+        reader_done = False
+        while True:
+            while not reader_done and len(pending) < threads + 1:
+                b, arr, final, error = reader.get()
+                pending.append((b, arr, final, error, submit(arr, b, final)))
+                reader_done = final
+            if not pending:
+                break
+            b, arr, final, error, fut = pending.popleft()
+            s = fut.result()
+            if step is None:
+                per_event = arr.shape[0] / max(s.n_ev, 1)
+                step = max(1, min(MAX_AUTO_STEP, int(CHUNK_TEXT_BYTES // max(per_event, 1.0))))
+            if s.status >= c.ERR_LINE:
+                line = _line_at(source, b + s.errpos)
+                if s.status == c.ERR_CUT:
+                    why = f" ({error})" if error is not None else ""
+                    raise HepMCError(
+                        f"{name}: line {line}: the file is cut short inside the event that "
+                        f"starts here{why}; {n_seen + s.n_done} complete events precede it; "
+                        "use strict=False to read the complete events"
+                    )
+                msg = _describe(s.status, s.a, s.b, form, _line_text(arr, s.errpos))
+                raise HepMCError(f"{name}: line {line}: {msg}")
+            for row in s.errs.tolist():
+                if row[3] == c.ERR_CUT:
+                    why = f" ({error})" if error is not None else ""
+                    problem = (f"{name}: the file is cut short inside its last event{why} "
+                               f"(after {n_seen + s.n_ev} complete events)")  # fmt: skip
+                    continue
+                n_skipped += 1
+                if len(skipped) < _MAX_LISTED:
+                    reason = _describe(row[3], row[4], row[5], form, _line_text(arr, row[2]))
+                    skipped.append((b + row[0], b + row[1], reason))
+            if error is not None and problem is None:
+                problem = f"{error} after {n_seen + s.n_ev} complete events"
+            # hand the events to chunks of exactly ``step``
+            a = 0
+            while a < s.n_ev:
+                take = min(step - in_chunk, s.n_ev - a)
+                parts.append((s, a, a + take))
+                in_chunk += take
+                a += take
+                if in_chunk >= step:
+                    out = _concat(parts, k)
+                    parts, in_chunk = [], 0
+                    yield out
+                    del out
+            n_seen += s.n_ev
+            if s.status == c.ST_END:
+                saw_end = True
+                later = [item[1] for item in pending]
+                last = final or (bool(pending) and pending[-1][2])
+                _check_after_end(source, name, b + s.pos, arr[s.pos :], later, last, reader,
+                                 strict)  # fmt: skip
+                break
+            if s.status == c.ST_LISTING:
+                line = _line_at(source, b + s.pos)
+                text = _line_text(arr, s.pos).decode("utf-8", "replace")
+                _problem(f"{name}: line {line}: unexpected {text!r} inside the event listing "
+                         f"after {n_seen} events (a second file appended?); what follows is "
+                         "not read", strict)  # fmt: skip
+                saw_end = True
+                break
+            if s.status == c.ST_STOPPED:
+                stopped = True
+                break
+        if n_skipped:
+            where = _lines_at(source, sorted(x for r in skipped for x in (r[0], r[1])))
+            spans = []
+            for j in range(len(skipped)):
+                lo, hi = where[2 * j], where[2 * j + 1] - 1
+                spans.append(f"{lo}-{hi}" if hi > lo else f"{lo}")
+            more = ", ..." if n_skipped > len(skipped) else ""
+            warnings.warn(
+                f"{name}: skipped {n_skipped} damaged event(s) (lines {', '.join(spans)}{more}); "
+                f"the first: {skipped[0][2]}; the intact events are delivered",
+                HepMCWarning, stacklevel=2,
+            )  # fmt: skip
+        if problem is not None:
+            _problem(problem, strict)
+        elif not saw_end and not stopped and need_end:
+            _problem(f"{name}: the file ends without the END_EVENT_LISTING line after "
+                     f"{n_seen} complete events (cut short?)", strict)  # fmt: skip
+        if parts:
+            out = _concat(parts, k)
+            parts = []
+            yield out
+    finally:
+        reader.close()
+        for *_, fut in pending:
+            fut.cancel()
+        if pool is not None:
+            pool.shutdown(wait=True)
+
+
+def _check_after_end(source: Source, name: str, pos: int, rest: np.ndarray,
+                     later: list[np.ndarray], final: bool, reader: _Buffers,
+                     strict: bool) -> None:  # fmt: skip
+    """After the END_EVENT_LISTING line: only blank text (or a problem)."""
+    text = bytes(rest)
+    nl = text.find(b"\n")
+    after = text[nl + 1 :] if nl >= 0 else b""
+    after += b"".join(bytes(x) for x in later)
+    while not final and len(after) < (1 << 20):
+        _b, arr, final, _e = reader.get()
+        after += bytes(arr)
+    if after.strip():
+        at = pos + (nl + 1 if nl >= 0 else len(text)) + (len(after) - len(after.lstrip()))
+        line = _line_at(source, at)
+        shown = after.strip()[:60].decode("utf-8", "replace")
+        _problem(f"{name}: line {line}: text after the END_EVENT_LISTING line ({shown!r}; a "
+                 "second file appended?) is not read", strict)  # fmt: skip
+
+
+def _problem(msg: str, strict: bool) -> None:
+    if strict:
+        raise HepMCError(msg + "; use strict=False to read the complete events")
+    warnings.warn(msg + "; the complete events are delivered", HepMCWarning, stacklevel=4)
