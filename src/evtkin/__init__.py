@@ -10,6 +10,7 @@ from __future__ import annotations
 import importlib
 from typing import TYPE_CHECKING, Any
 
+from evtkin._version import __version__
 from evtkin.errors import (
     ConfigError,
     EvtkinError,
@@ -18,8 +19,6 @@ from evtkin.errors import (
     NtupleError,
     ResultsError,
 )
-
-__version__ = "0.1.0"
 
 # public name -> module that defines it
 _LAZY: dict[str, str] = {

@@ -11,7 +11,7 @@ import argparse
 import importlib
 import sys
 
-from evtkin import __version__
+from evtkin._version import __version__
 from evtkin.errors import EvtkinError
 
 # command modules, in the order --help lists them

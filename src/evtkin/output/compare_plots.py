@@ -23,7 +23,6 @@ import io
 import json
 import math
 import os
-import tempfile
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -33,6 +32,7 @@ import numpy as np
 
 from evtkin.compare import HistComparison, HistData, compare_histograms, p_text
 from evtkin.errors import ResultsError
+from evtkin.files import atomic_path, atomic_write_text, safe_name
 from evtkin.output.drawing import Task, draw_all
 from evtkin.output.plots import display_label
 
@@ -507,15 +507,8 @@ def plot_comparison(
 
 
 def _save_atomic(fig: Any, path: Path) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
+    with atomic_path(path) as tmp:
         fig.savefig(tmp, dpi=110, bbox_inches="tight")
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -627,18 +620,7 @@ def write_summary(cs: ComparisonSet, out: str | os.PathLike[str]) -> dict[str, P
 
 
 def _write_text(path: Path, text: str) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-
-
-def _safe(name: str) -> str:
-    return "".join(ch if (ch.isalnum() or ch in "_.+-") else "_" for ch in name)
+    atomic_write_text(path, text)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -690,7 +672,7 @@ def compare_results(
     used: set[str] = set()
     tasks: list[Task] = []
     for e in cs.entries:
-        stem = _safe(e.name)
+        stem = safe_name(e.name)
         while stem in used:
             stem += "_"
         used.add(stem)

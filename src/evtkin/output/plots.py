@@ -18,8 +18,9 @@ from typing import Any
 
 import numpy as np
 
+from evtkin.files import atomic_write_bytes, safe_name
 from evtkin.output.drawing import Task, draw_all
-from evtkin.output.tables import HistResult, Results, atomic_write_bytes, safe_name
+from evtkin.output.tables import HistResult, Results
 
 __all__ = ["display_label", "plot_hist1d", "plot_hist2d", "write_plots"]
 

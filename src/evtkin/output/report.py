@@ -22,7 +22,8 @@ from typing import Any
 
 import numpy as np
 
-from evtkin import __version__
+from evtkin._version import __version__
+from evtkin.files import atomic_write_text
 
 __all__ = ["render_compare_report", "render_run_report", "write_compare_report", "write_run_report"]
 
@@ -106,17 +107,7 @@ def _page(title: str, body: list[str], note: str = "") -> str:
 
 
 def _write(path: str | os.PathLike[str], text: str) -> Path:
-    p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".html", dir=p.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-        os.replace(tmp, p)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-    return p
+    return atomic_write_text(path, text)
 
 
 def _anchor(name: str) -> str:

@@ -9,7 +9,6 @@ The file is written under a temporary name and renamed.
 from __future__ import annotations
 
 import os
-import tempfile
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
@@ -17,7 +16,8 @@ from typing import Any
 import numpy as np
 
 from evtkin.errors import ResultsError
-from evtkin.output.tables import HistResult, Results, safe_name
+from evtkin.files import atomic_path, safe_name
+from evtkin.output.tables import HistResult, Results
 
 __all__ = ["read_root", "root_key", "th_object", "write_results_root", "write_root"]
 
@@ -78,23 +78,15 @@ def write_root(path: str | os.PathLike[str], objects: Mapping[str, HistResult],
     import uproot
 
     p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=p.parent)
-    os.close(fd)
-    try:
-        with uproot.recreate(tmp) as f:
-            for key, h in objects.items():
-                f[key] = th_object(key, h)
-                if with_bands:
-                    zero = np.zeros_like(h.values)
-                    for bname, b in h.bands.items():
-                        for side, arr in (("up", b.up), ("down", b.down)):
-                            k = f"{key}__{safe_name(bname)}_{side}"
-                            f[k] = th_object(k, h, arr, zero)
-        os.replace(tmp, p)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    with atomic_path(p) as tmp, uproot.recreate(tmp) as f:
+        for key, h in objects.items():
+            f[key] = th_object(key, h)
+            if with_bands:
+                zero = np.zeros_like(h.values)
+                for bname, b in h.bands.items():
+                    for side, arr in (("up", b.up), ("down", b.down)):
+                        k = f"{key}__{safe_name(bname)}_{side}"
+                        f[k] = th_object(k, h, arr, zero)
     return p
 
 

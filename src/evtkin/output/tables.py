@@ -13,8 +13,6 @@ import io
 import json
 import math
 import os
-import re
-import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
@@ -23,7 +21,9 @@ from typing import Any
 
 import numpy as np
 
+from evtkin._version import __version__
 from evtkin.errors import ResultsError
+from evtkin.files import atomic_write_text, safe_name
 from evtkin.hists.bands import Band
 from evtkin.hists.normalise import NormalisedHist
 
@@ -34,12 +34,9 @@ __all__ = [
     "HistResult",
     "Results",
     "SampleResult",
-    "atomic_write_bytes",
-    "atomic_write_text",
     "cutflow_text",
     "hist_result",
     "load_results",
-    "safe_name",
     "write_cutflow",
     "write_hist_csv",
     "write_json",
@@ -180,15 +177,6 @@ def hist_result(
 # --------------------------------------------------------------------------------------------------
 # helpers
 # --------------------------------------------------------------------------------------------------
-_SAFE = re.compile(r"[^A-Za-z0-9_.+-]")
-
-
-def safe_name(name: str) -> str:
-    """A file-name part: characters outside ``[A-Za-z0-9_.+-]`` become ``_``."""
-    out = _SAFE.sub("_", name)
-    return out if out.strip(".") else "_"
-
-
 def _jnum(x: float) -> float | None:
     x = float(x)
     return x if math.isfinite(x) else None
@@ -213,25 +201,6 @@ def _arr(x: Any, what: str) -> np.ndarray:
 
 def _flat(x: Any) -> bool:
     return not (len(x) and isinstance(x[0], list))
-
-
-def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
-    """Write ``data`` to a temporary file beside ``path`` and rename it into place."""
-    p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=p.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, p)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return p
-
-
-def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
-    return atomic_write_bytes(path, text.encode("utf-8"))
 
 
 def _default(o: Any) -> Any:
@@ -266,7 +235,6 @@ def write_json(path: str | os.PathLike[str], obj: Any) -> Path:
 
 def write_provenance(folder: str | os.PathLike[str], record: Mapping[str, Any]) -> Path:
     """``provenance.json`` from a dict given by the pipeline (evtkin version added if absent)."""
-    from evtkin import __version__
 
     rec = {"evtkin_version": __version__, **dict(record)}
     return write_json(Path(folder) / "provenance.json", rec)
@@ -391,7 +359,6 @@ def write_cutflow(
 # results folder
 # --------------------------------------------------------------------------------------------------
 def results_to_dict(results: Results) -> dict[str, Any]:
-    from evtkin import __version__
 
     meta = dict(results.meta)
     out: dict[str, Any] = {

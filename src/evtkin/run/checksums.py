@@ -20,8 +20,9 @@ import contextlib
 import hashlib
 import json
 import os
-import tempfile
 from pathlib import Path
+
+from evtkin.files import atomic_write_text
 
 __all__ = ["cache_dir", "sha256_of"]
 
@@ -69,13 +70,5 @@ def sha256_of(path: str | os.PathLike[str], block: int = 1 << 23) -> str:
     digest = _hash(path, block)
     if _identity(path) == ident:  # not changed while it was read
         with contextlib.suppress(OSError):
-            entry.parent.mkdir(parents=True, exist_ok=True)
-            fd, tmp = tempfile.mkstemp(dir=entry.parent, prefix=".tmp-", suffix=".json")
-            try:
-                with os.fdopen(fd, "w", encoding="utf-8") as fh:
-                    json.dump({"identity": ident, "sha256": digest}, fh)
-                os.replace(tmp, entry)
-            except OSError:
-                with contextlib.suppress(OSError):
-                    os.unlink(tmp)
+            atomic_write_text(entry, json.dumps({"identity": ident, "sha256": digest}))
     return digest

@@ -12,6 +12,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from evtkin.files import atomic_write_text
 from evtkin.output import tables
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -61,7 +62,7 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers:
     # every file is written under a temporary name and renamed; while the folder is being
     # (re)written it holds INCOMPLETE and no provenance.json (written last), so a run that
     # was interrupted is recognisable
-    marker = tables.atomic_write_text(out / INCOMPLETE_MARKER, _INCOMPLETE_TEXT)
+    marker = atomic_write_text(out / INCOMPLETE_MARKER, _INCOMPLETE_TEXT)
     (out / "provenance.json").unlink(missing_ok=True)
     formats = set(plan.config.output.formats)
     results = to_results(plan, result, with_cutflow="cutflow" in formats)

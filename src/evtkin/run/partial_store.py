@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 
 from evtkin.errors import ResultsError
+from evtkin.files import atomic_write_bytes
 from evtkin.hists.fill import HistAccumulator, HistSpec
 from evtkin.run.partial import Cutflow, FileRecord, PartialResult, ProcessTotals
 
@@ -132,11 +133,9 @@ def save_partial(folder: str | os.PathLike[str], partial: PartialResult, *,
             "seconds": {k: float(v) for k, v in partial.seconds.items()}}
     arrays["meta"] = np.array(json.dumps(meta))
     out = Path(folder) / PARTIAL_FILE
-    tmp = out.with_name(out.name + ".tmp")
     buf = io.BytesIO()
     np.savez_compressed(buf, **arrays)  # type: ignore[arg-type]
-    tmp.write_bytes(buf.getvalue())
-    os.replace(tmp, out)
+    atomic_write_bytes(out, buf.getvalue())
     return out
 
 

@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from evtkin._version import __version__
 from evtkin.config import AnalysisConfig, SampleSpec, load_config
 from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator
@@ -229,8 +230,6 @@ def _versions() -> dict[str, str]:
     import numba
     import uproot
     import vector
-
-    from evtkin import __version__
 
     return {"evtkin": __version__, "python": platform.python_version(),
             "numpy": np.__version__, "awkward": awkward.__version__,
