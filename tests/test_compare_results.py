@@ -327,7 +327,7 @@ def test_compare_results_and_command_on_folders(tmp_path: Path) -> None:
         "evtkin.output.tables", reason="evtkin.output.tables (results reader) not available yet"
     )
     from evtkin.cli import main
-    from evtkin.output.compare_plots import compare_results
+    from evtkin.output.compare_run import compare_results
 
     a, b = tmp_path / "run_std", tmp_path / "run_dfm"
     _write_results_folder(a, make_results(make_sample("standard", 60, 0.0)))

@@ -31,7 +31,7 @@ _LAZY: dict[str, str] = {
     "HepMCInfo": "evtkin.io.hepmc_header",
     "write_hepmc": "evtkin.io.hepmc_write",
     "run": "evtkin.run.pipeline",
-    "compare_results": "evtkin.output.compare_plots",
+    "compare_results": "evtkin.output.compare_run",
     "load_results": "evtkin.output.tables",
 }
 
@@ -63,7 +63,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from evtkin.io.lhe import read_lhe
     from evtkin.io.lhe_header import LHEInfo, lhe_info
     from evtkin.io.lhe_write import write_lhe
-    from evtkin.output.compare_plots import compare_results
+    from evtkin.output.compare_run import compare_results
     from evtkin.output.tables import load_results
     from evtkin.run.pipeline import run
 

@@ -90,7 +90,8 @@ def run(args: argparse.Namespace) -> int:
         # the processes that draw the plots fork from a forkserver that imports matplotlib
         # and evtkin's plotting now, while this process imports and compares
         start_forkserver(["evtkin.output.compare_plots", "matplotlib.pyplot"])
-    from evtkin.output.compare_plots import compare_results, summary_text
+    from evtkin.output.compare_plots import summary_text
+    from evtkin.output.compare_run import compare_results
 
     cs = compare_results(
         args.folders,

@@ -1,8 +1,9 @@
-"""Comparison of results folders: pairing, plots (matplotlib Agg), summary tables, the driver.
+"""Comparison of results folders: pairing, plots (matplotlib Agg), summary tables.
 
-:func:`compare_results` loads result folders written by ``evtkin run`` (format in
-docs/results-format.md), compares every 1-D histogram present in all of them against the first
-(the reference) with :func:`evtkin.compare.compare_histograms`, and writes to ``out``::
+:func:`evtkin.output.compare_run.compare_results` (the driver) loads result folders written by
+``evtkin run`` (format in docs/results-format.md), compares every 1-D histogram present in all
+of them against the first (the reference) with :func:`evtkin.compare.compare_histograms`, and
+writes to ``out``::
 
     plots/<hist>.png     overlaid distributions, ratio panel (ratio ± MC error, reference band),
                          optional pull panel
@@ -32,8 +33,7 @@ import numpy as np
 
 from evtkin.compare import HistComparison, HistData, compare_histograms, p_text
 from evtkin.errors import ResultsError
-from evtkin.files import atomic_path, atomic_write_text, safe_name
-from evtkin.output.drawing import Task, draw_all
+from evtkin.files import atomic_path, atomic_write_text
 from evtkin.output.plots import display_label
 
 __all__ = [
@@ -41,7 +41,6 @@ __all__ = [
     "ComparisonSet",
     "Source",
     "compare_loaded",
-    "compare_results",
     "plot_comparison",
     "summary_rows",
     "write_summary",
@@ -621,67 +620,3 @@ def write_summary(cs: ComparisonSet, out: str | os.PathLike[str]) -> dict[str, P
 
 def _write_text(path: Path, text: str) -> None:
     atomic_write_text(path, text)
-
-
-# --------------------------------------------------------------------------------------------------
-# driver
-
-
-def compare_results(
-    folders: Sequence[str | os.PathLike[str]],
-    *,
-    out: str | os.PathLike[str],
-    shape_only: bool = False,
-    with_bands: bool = False,
-    pulls: bool = False,
-    samples: Sequence[str] | None = None,
-    pair: tuple[str, str] | None = None,
-    histograms: Sequence[str] | None = None,
-    min_entries: float = 5.0,
-    low_content: str = "flag",
-    with_flow: bool = False,
-    report: bool = True,
-    workers: int = 1,
-) -> ComparisonSet:
-    """Compare result folders (the first is the reference) and write plots, tables and a report.
-
-    One folder alone compares its samples (the first is the reference), or, with ``pair``, two of
-    its histograms. See :func:`compare_loaded` for the pairing rules. ``workers``: processes
-    drawing the plots (see :func:`evtkin.output.drawing.draw_all`).
-    """
-    from evtkin.output.tables import load_results
-
-    if not folders:
-        raise ResultsError("compare: give at least one results folder")
-    results = [load_results(f) for f in folders]
-    cs = compare_loaded(
-        results,
-        [str(f) for f in folders],
-        samples=samples,
-        pair=pair,
-        histograms=histograms,
-        shape_only=shape_only,
-        with_bands=with_bands,
-        min_entries=min_entries,
-        low_content=low_content,
-        with_flow=with_flow,
-    )
-    outp = Path(out)
-    outp.mkdir(parents=True, exist_ok=True)
-    cs.out = str(outp)
-    used: set[str] = set()
-    tasks: list[Task] = []
-    for e in cs.entries:
-        stem = safe_name(e.name)
-        while stem in used:
-            stem += "_"
-        used.add(stem)
-        e.plot = f"plots/{stem}.png"
-        tasks.append((plot_comparison, (e, outp / e.plot), {"pulls": pulls, "note": cs.note}))
-    draw_all(tasks, workers)
-    write_summary(cs, outp)
-    if report:
-        from evtkin.output.report import write_compare_report
-
-        write_compare_report(cs, outp / "report.html")
-    return cs
