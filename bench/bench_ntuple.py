@@ -232,7 +232,7 @@ def main(n: int = 1_000_000, keep: bool = False) -> None:
 
     import evtkin.run.pipeline as pipeline
     from evtkin.config import load_config
-    from evtkin.run.ntuple_input import config_fields
+    from evtkin.run.inputs.ntuple import config_fields
 
     cfg = load_config(run_config(path))
     run_fields = config_fields(cfg, cfg.samples["bench"].input)

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from evtkin.io.lhe import read_lhe
-from evtkin.run import units
+from evtkin.run.inputs import lhe as lhe_input
 from evtkin.run.pipeline import run
 from test_bands_pipeline_lhe import config, lhe_text, write
 
@@ -37,7 +37,7 @@ def _file(tmp_path):  # type: ignore[no-untyped-def]
 
 def test_pipeline_sums_group_weights_per_bin_before_squaring(tmp_path, monkeypatch) -> None:  # type: ignore[no-untyped-def]
     f = _file(tmp_path)
-    original = units._chunks
+    original = lhe_input.lhe_chunks
 
     def with_groups(*args, **kwargs):  # type: ignore[no-untyped-def]
         for chunk in original(*args, **kwargs):
@@ -45,7 +45,7 @@ def test_pipeline_sums_group_weights_per_bin_before_squaring(tmp_path, monkeypat
                 chunk = ak.with_field(chunk, np.array(FIRST[: len(chunk)]), "group")
             yield chunk
 
-    monkeypatch.setattr(units, "_chunks", with_groups)
+    monkeypatch.setattr(lhe_input, "lhe_chunks", with_groups)
     s = run(config([f], uncertainties={"automatic": False})).samples["s"]
     h = s.histograms["h"]
     assert h.values[0][1:3] == pytest.approx(SUMW)
@@ -56,13 +56,13 @@ def test_pipeline_sums_group_weights_per_bin_before_squaring(tmp_path, monkeypat
 
 def test_without_groups_events_are_independent(tmp_path, monkeypatch) -> None:  # type: ignore[no-untyped-def]
     f = _file(tmp_path)
-    original = units._chunks
+    original = lhe_input.lhe_chunks
 
     def without_groups(*args, **kwargs):  # type: ignore[no-untyped-def]
         for chunk in original(*args, **kwargs):
             yield chunk[[n for n in ak.fields(chunk) if n != "group"]]
 
-    monkeypatch.setattr(units, "_chunks", without_groups)
+    monkeypatch.setattr(lhe_input, "lhe_chunks", without_groups)
     h = run(config([f])).samples["s"].histograms["h"]
     assert h.variances[0][1:3] == pytest.approx(SUMW2_INDEPENDENT)
 

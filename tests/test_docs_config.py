@@ -104,7 +104,7 @@ def _first_chunk(plan: Any, name: str) -> Any:
     spec = plan.config.samples[name]
     if spec.format == "root":
         from evtkin.io.ntuple import read_ntuple
-        from evtkin.run.ntuple_input import config_fields
+        from evtkin.run.inputs.ntuple import config_fields
 
         reader = read_ntuple(spec.files[0], spec.input, step_size=N_EVENTS, entry_start=0,
                              entry_stop=N_EVENTS, fields=config_fields(plan.config, spec.input))

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-from evtkin.config.schema import SampleSpec
+from evtkin.config.schema import SAMPLE_FORMATS, SampleSpec
 from evtkin.config.tables import _fmt_path, _Table
 from evtkin.errors import ConfigError
 
@@ -22,7 +22,7 @@ def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, Samp
         files = s.strings("files")
         if not files:
             raise s.ctx.error((*s.path, "files"), "expected at least one file")
-        fmt = s.string("format", "lhe", choices=("lhe", "root"))
+        fmt = s.string("format", "lhe", choices=SAMPLE_FORMATS)
         ntuple = _read_ntuple_sample(s, fmt, base)
         out[name] = SampleSpec(
             name=name,
@@ -41,7 +41,7 @@ def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, Samp
 
 def _read_ntuple_sample(s: _Table, fmt: str, base: Path) -> dict[str, Any]:
     """The ROOT-ntuple keys of a sample: ``input`` (the branch mapping), ``weights_give``,
-    ``truth_files`` (see :mod:`evtkin.run.ntuple_input`)."""
+    ``truth_files`` (see :mod:`evtkin.run.inputs.ntuple`)."""
     from evtkin.io.ntuple_mapping import NtupleMapping
 
     if fmt != "root":

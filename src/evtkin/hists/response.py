@@ -1,7 +1,7 @@
 """Response matrices (truth bin × reconstructed bin) with per-bin efficiency and purity.
 
 For a 1-D histogram marked ``response = true`` and a sample whose detector-level events have
-generator-level partners (``truth_files``, see :mod:`evtkin.run.ntuple_input`), the histogram's
+generator-level partners (``truth_files``, see :mod:`evtkin.run.inputs.ntuple`), the histogram's
 value is computed at both levels with the *same* config: objects, selection steps, composites
 and quantities are evaluated once on the generator-level event record and once on the
 reconstructed collections. The selection row is the histogram's ``after`` step (default: all
@@ -33,82 +33,29 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-import awkward as ak
 import numpy as np
 
-from evtkin.errors import ConfigError
-from evtkin.hists.fill import AxisSpec, HistAccumulator, HistSpec, fill_many
+from evtkin.hists.fill import AxisSpec, HistSpec
 
-__all__ = ["Response", "fill_responses", "finalise_responses", "response_names",
-           "write_responses"]
+__all__ = ["SUFFIXES", "Response", "response_specs", "write_responses"]
 
 SUFFIXES = ("#response", "#truth", "#reco")
 
 
-def response_names(plan: Any, sample: str) -> list[str]:
-    """The histograms of ``sample`` that get a response matrix."""
-    return [n for n in plan.histograms_for(sample) if plan.config.histograms[n].response]
-
-
-def _specs(plan: Any, name: str) -> dict[str, HistSpec]:
-    ax = plan.hist_specs[name].axes[0]
+def response_specs(spec: HistSpec) -> dict[str, HistSpec]:
+    """The three accumulators' specs of 1-D histogram ``spec``: ``#response`` (truth × reco),
+    ``#truth`` and ``#reco``, with the histogram's binning."""
+    name = spec.name
+    ax = spec.axes[0]
     truth = AxisSpec(f"truth_{ax.name}", ax.edges, ax.kind, f"{ax.label} (truth)", ax.unit)
     reco = AxisSpec(f"reco_{ax.name}", ax.edges, ax.kind, f"{ax.label} (reconstructed)",
                     ax.unit)
-    title = plan.hist_specs[name].title
+    title = spec.title
     return {
         "#response": HistSpec(f"{name}#response", (truth, reco), f"{title}: response"),
         "#truth": HistSpec(f"{name}#truth", (truth,), f"{title}: truth"),
         "#reco": HistSpec(f"{name}#reco", (reco,), f"{title}: reconstructed"),
     }
-
-
-def _per_event(view: Any, name: str, n: int) -> np.ndarray:
-    spec = view.plan.config.histograms[name]
-    v = view.evaluate(spec.axes[0].value, f"histograms.{name}.x")
-    if not isinstance(v, ak.Array):
-        return np.broadcast_to(np.asarray(v, dtype=np.float64), (n,)).copy()
-    if v.ndim != 1 or ak.fields(v):
-        raise ConfigError(
-            f"{view.plan.config.source}: histograms.{name}.response: {spec.axes[0].value.text!r}"
-            " must give one number per event for a response matrix (e.g. leptons[0].pt)")
-    return np.asarray(ak.to_numpy(ak.fill_none(v, np.nan)), dtype=np.float64)
-
-
-def fill_responses(plan: Any, result: Any, key: tuple[str, int, int], names: list[str],
-                   reco: tuple[Any, list[np.ndarray]], truth: tuple[Any, list[np.ndarray]],
-                   weight: np.ndarray, in_p: np.ndarray | None) -> None:
-    """Fill the truth, reco and response accumulators of one chunk into ``result.hists`` under
-    ``(sample, NAME#response|#truth|#reco, file index, process id)``; no variation weights."""
-    sample, index, pid = key
-    steps = {s.name: i + 1 for i, s in enumerate(plan.config.steps)}
-    rview, rmasks = reco
-    tview, tmasks = truth
-    n = len(weight)
-    novar = np.zeros((n, 0))
-    items = []
-    for name in names:
-        h = plan.config.histograms[name]
-        row = steps[h.after] if h.after is not None else len(steps)
-        r = _per_event(rview, name, n)
-        t = _per_event(tview, name, n)
-        r_ok = rmasks[row] & ~np.isnan(r)
-        t_ok = tmasks[row] & ~np.isnan(t)
-        if in_p is not None:
-            r_ok, t_ok = r_ok & in_p, t_ok & in_p
-        both = np.flatnonzero(r_ok & t_ok)
-        specs = _specs(plan, name)
-        accs = {}
-        for suffix, spec in specs.items():
-            k = (sample, spec.name, index, pid)
-            if k not in result.hists:
-                result.hists[k] = HistAccumulator(spec, ())
-            accs[suffix] = result.hists[k]
-        rows_t, rows_r = np.flatnonzero(t_ok), np.flatnonzero(r_ok)
-        items += [(accs["#response"], [t[both], r[both]], both),
-                  (accs["#truth"], [t[rows_t]], rows_t),
-                  (accs["#reco"], [r[rows_r]], rows_r)]
-    fill_many(items, weight=weight, variations=novar)
 
 
 @dataclass
@@ -164,38 +111,6 @@ class Response:
             "reco": clean(self.reco), "reco_sumw2": clean(self.reco_w2),
             "efficiency": clean(self.efficiency), "purity": clean(self.purity),
         }
-
-
-def finalise_responses(plan: Any, partial: Any, samples: dict[str, Any]) -> None:
-    """Scale each file's response accumulators by the sample's σ factors and attach
-    ``{histogram: Response}`` as ``responses`` to every sample result that has any."""
-    for sname, sres in samples.items():
-        names = response_names(plan, sname)
-        xs = getattr(sres, "xsec", None)
-        if not names or xs is None or not plan.config.samples[sname].truth_files:
-            continue
-        files = sorted(i for (s, i) in partial.files if s == sname)
-        position = {i: k for k, i in enumerate(files)}
-        out: dict[str, Response] = {}
-        for name in names:
-            parts: dict[str, list[np.ndarray]] = {}
-            for suffix in SUFFIXES:
-                w = w2 = None
-                for (s, h, i, pid), acc in sorted(partial.hists.items()):
-                    if s != sname or h != name + suffix:
-                        continue
-                    f = xs.factor(pid, position[i])
-                    w = f * acc.sumw[0] if w is None else w + f * acc.sumw[0]
-                    w2 = f * f * acc.sumw2[0] if w2 is None else w2 + f * f * acc.sumw2[0]
-                if w is None:
-                    spec = _specs(plan, name)[suffix]
-                    w = np.zeros(spec.shape)
-                    w2 = np.zeros(spec.shape)
-                parts[suffix] = [w, np.asarray(w2)]
-            ax = plan.hist_specs[name].axes[0]
-            out[name] = Response(name, np.asarray(ax.edges, dtype=np.float64), ax.label, ax.unit,
-                                 *parts["#response"], *parts["#truth"], *parts["#reco"])
-        sres.responses = out
 
 
 def write_responses(folder: str | Path, result: Any) -> Path | None:

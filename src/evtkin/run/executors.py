@@ -603,7 +603,7 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
     target size of byte-range units (default: automatic from the number of workers).
     ``only_files``: run only the units of these ``(sample, file index)`` inputs (one part of
     a run split over jobs, see :mod:`evtkin.run.parts`).
-    The SHA-256 of each LHE input is computed apart from the units when the executor has a
+    The SHA-256 of each input is computed apart from the units when the executor has a
     ``checksums(paths)`` method (all executors here do) and recorded in the merged result.
     """
     ex: Any = executor or SerialExecutor()
@@ -618,12 +618,12 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
         units = _indexed(units)
         start_checksums = getattr(ex, "checksums", None)
         if start_checksums is not None:
-            # hash the LHE inputs as separate work (local executors: a thread of this
+            # hash the inputs as separate work (local executors: a thread of this
             # process, overlapping the worker start-up and the event processing; Dask: a
             # task of its own) instead of inside the unit that starts each file, which
             # made that unit the straggler
-            units = [dataclasses.replace(u, checksum=False)
-                     if u.format == "lhe" and u.starts_file else u for u in units]
+            units = [dataclasses.replace(u, checksum=False) if u.starts_file else u
+                     for u in units]
             hasher = start_checksums([u.path for u in units if not u.checksum])
         results: dict[int, PartialResult] = {}
         skipped: list[dict[str, Any]] = []

@@ -26,8 +26,9 @@ from evtkin.errors import ResultsError
 from evtkin.hists.fill import HistSpec
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.partial_store import load_partial
-from evtkin.run.pipeline import RunResult, _provenance, finalise
+from evtkin.run.pipeline import _provenance, finalise
 from evtkin.run.plan import Plan, build_plan
+from evtkin.run.result import RunResult
 
 __all__ = ["merge_results"]
 
@@ -69,11 +70,11 @@ def _config(prov: dict[str, Any]) -> AnalysisConfig:
 def _specs(plan: Plan) -> dict[str, HistSpec]:
     specs: dict[str, HistSpec] = dict(plan.hist_specs)
     if any(h.response for h in plan.config.histograms.values()):
-        from evtkin.hists.response import _specs as response_specs
+        from evtkin.hists.response import response_specs
 
         for name, h in plan.config.histograms.items():
             if h.response:
-                for suffix, spec in response_specs(plan, name).items():
+                for suffix, spec in response_specs(plan.hist_specs[name]).items():
                     specs[name + suffix] = spec
     return specs
 

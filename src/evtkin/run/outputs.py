@@ -16,8 +16,8 @@ from evtkin.files import atomic_write_text
 from evtkin.output import tables
 
 if TYPE_CHECKING:  # pragma: no cover
-    from evtkin.run.pipeline import RunResult
     from evtkin.run.plan import Plan
+    from evtkin.run.result import RunResult
 
 __all__ = ["INCOMPLETE_MARKER", "summary_text", "to_results", "write_outputs"]
 

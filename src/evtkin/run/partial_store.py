@@ -64,6 +64,10 @@ def _encode(value: Any) -> Any:
     raise TypeError(f"cannot store a {type(value).__name__} in {PARTIAL_FILE}")
 
 
+#: record types that moved, under the name older folders store
+_MOVED = {"evtkin.run.ntuple_input:NtupleRunInfo": "evtkin.run.inputs.ntuple:NtupleRunInfo"}
+
+
 def _decode(value: Any, where: str) -> Any:
     if isinstance(value, list):
         return [_decode(v, where) for v in value]
@@ -76,7 +80,8 @@ def _decode(value: Any, where: str) -> Any:
     if "__array__" in value:
         return np.asarray(value["__array__"], dtype=np.float64)
     if "__dataclass__" in value:
-        module, _, name = str(value["__dataclass__"]).partition(":")
+        stored = str(value["__dataclass__"])
+        module, _, name = _MOVED.get(stored, stored).partition(":")
         if module != "evtkin" and not module.startswith("evtkin."):
             raise ResultsError(f"{where}: refusing to rebuild a {module}:{name} object")
         try:

@@ -16,7 +16,6 @@ import platform
 import sys
 import time
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -27,90 +26,19 @@ from evtkin.config import AnalysisConfig, SampleSpec, load_config
 from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import NormalisedHist, normalise
-from evtkin.hists.xsec import FileTotals, ProcessDecl, RunDecl, XsecResult, combine_files
+from evtkin.hists.xsec import FileTotals, XsecResult
 from evtkin.run.executors import Executor, execute, local_cores
+from evtkin.run.inputs import input_source
 from evtkin.run.partial import PartialResult
 from evtkin.run.plan import Plan, build_plan
+from evtkin.run.responses import finalise_responses
+from evtkin.run.result import RunResult, SampleResult
 from evtkin.run.units import make_units
 
 __all__ = ["RunResult", "SampleResult", "finalise", "run"]
 
 
-@dataclass
-class SampleResult:
-    """Everything evtkin knows about one sample after a run (normalised)."""
-
-    name: str
-    label: str
-    luminosity_fb: float | None
-    toy: bool
-    xsec: XsecResult | None
-    variations: tuple[str, ...]
-    histograms: dict[str, NormalisedHist]
-    #: per histogram: Σw, Σw² with the normalised per-event weights (before the normalisation mode)
-    weighted: dict[str, HistAccumulator]
-    cutflow: list[dict[str, Any]]
-    n_events: int
-    #: per histogram: uncertainty bands (name → Band) from the resolved recipes
-    bands: dict[str, dict[str, Any]] = field(default_factory=dict)
-    #: per 1-D histogram: the same bands formed from unit-area shapes, each variation
-    #: normalised on its own (what a shape-only comparison draws)
-    shape_bands: dict[str, dict[str, Any]] = field(default_factory=dict)
-    #: the recipes applied to this sample and notes on how they were resolved
-    recipes: list[Any] = field(default_factory=list)
-    uncertainty_notes: list[str] = field(default_factory=list)
-    #: per histogram marked ``response = true``: evtkin.hists.response.Response
-    responses: dict[str, Any] = field(default_factory=dict)
-
-
-@dataclass
-class RunResult:
-    """What :func:`run` returns: ``result[sample][histogram]`` is a ``hist.Hist`` (Weight storage,
-    normalised as the config asks)."""
-
-    samples: dict[str, SampleResult]
-    provenance: dict[str, Any]
-    out: Path | None = None
-    seconds: dict[str, float] = field(default_factory=dict)
-    #: the merged, not yet normalised sums (written as ``partial.npz`` for ``evtkin merge``)
-    partial: PartialResult | None = None
-
-    def __getitem__(self, sample: str) -> dict[str, Any]:
-        return self.hists(sample)
-
-    def hists(self, sample: str) -> dict[str, Any]:
-        """``{histogram name: hist.Hist}`` of one sample (nominal weight)."""
-        s = self.samples[sample]
-        return {name: _to_hist(nh) for name, nh in s.histograms.items()}
-
-    @property
-    def histograms(self) -> dict[str, dict[str, Any]]:
-        return {name: self.hists(name) for name in self.samples}
-
-
-def _to_hist(nh: NormalisedHist, variation: int = 0) -> Any:
-    acc = HistAccumulator(nh.spec, nh.variations, nh.entries,
-                          np.ascontiguousarray(np.moveaxis(nh.values, 0, -1)),
-                          np.ascontiguousarray(np.moveaxis(nh.variances, 0, -1)))
-    return acc.to_hist(variation)
-
-
 # --------------------------------------------------------------------------- finalising
-
-def _run_decl(info: Any, path: str) -> RunDecl:
-    tot = info.xsecinfo.get("totxsec") if info.xsecinfo else None
-    try:
-        totxsec = float(tot) if tot is not None else None
-    except ValueError:
-        totxsec = None
-    return RunDecl(
-        idwtup=int(info.weighting),
-        processes=tuple(ProcessDecl(p.process_id, p.xsec_pb, p.xsec_err_pb, p.max_weight)
-                        for p in info.processes),
-        totxsec_pb=totxsec,
-        source=path,
-    )
-
 
 def _file_totals(partial: PartialResult, sample: str, index: int) -> FileTotals:
     out = FileTotals()
@@ -138,16 +66,8 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
     factor: Callable[[int, int], float]
     if n_events > 0:
         try:
-            if spec.format == "root":  # ntuples: σ from weights_give (evtkin.run.ntuple_input)
-                from evtkin.run.ntuple_input import ntuple_xsec
-
-                xsec = ntuple_xsec(spec, [_file_totals(partial, name, r.index) for r in records])
-            else:
-                xsec = combine_files(
-                    [(_run_decl(r.info, r.path), _file_totals(partial, name, r.index))
-                     for r in records],
-                    override_pb=spec.cross_section_pb,
-                )
+            xsec = input_source(spec.format).cross_section(
+                spec, records, [_file_totals(partial, name, r.index) for r in records])
         except ValueError as exc:
             raise ConfigError(f"samples.{name}: {exc}") from None
         position = {i: k for k, i in enumerate(files)}
@@ -217,9 +137,9 @@ def finalise(plan: Plan, partial: PartialResult) -> dict[str, SampleResult]:
     samples = {name: _sample_result(plan, spec, partial)
                for name, spec in plan.config.samples.items()}
     if any(h.response for h in plan.config.histograms.values()):
-        from evtkin.hists.response import finalise_responses
-
-        finalise_responses(plan, partial, samples)
+        found = finalise_responses(plan, partial, {n: s.xsec for n, s in samples.items()})
+        for sname, responses in found.items():
+            samples[sname].responses = responses
     return samples
 
 
@@ -244,9 +164,8 @@ def _provenance(plan: Plan, partial: PartialResult, samples: Mapping[str, Sample
     for (sample, index), rec in sorted(partial.files.items()):
         inputs.append({"sample": sample, "index": index, "path": rec.path, "size": rec.size,
                        "sha256": rec.sha256, "events": rec.n_events})
-        extra = getattr(rec.info, "provenance", None)  # ntuples: tree, branches, bytes read
-        if callable(extra):
-            inputs[-1].update(extra())
+        # what the format adds (ntuples: tree, branches, bytes read)
+        inputs[-1].update(input_source(cfg.samples[sample].format).provenance(rec.info))
     return {
         "evtkin_version": _versions()["evtkin"],
         "versions": _versions(),

@@ -18,15 +18,13 @@ from typing import Any
 import awkward as ak
 import numpy as np
 
-from evtkin.config import AnalysisConfig, CompositeSpec, ObjectSpec
+from evtkin.config import AnalysisConfig, CompositeSpec
 from evtkin.errors import ConfigError
 from evtkin.expr import Expression, ExpressionError, evaluate
 from evtkin.hists.fill import AxisSpec, HistSpec
+from evtkin.select import build
 from evtkin.select import composites as comp
-from evtkin.select import jets as jetalg
 from evtkin.select import kinematics as kin
-from evtkin.select import objects as obj
-from evtkin.select import truth
 
 __all__ = ["ChunkView", "Plan", "analyse_chunk", "build_plan", "hist_entries"]
 
@@ -77,33 +75,7 @@ def build_plan(config: AnalysisConfig, *, step_size: int | None = None,
     return Plan(config, specs, size, max_events)
 
 
-# --------------------------------------------------------------------------- objects
-
-def _build_object(spec: ObjectSpec, particles: Any) -> Any:
-    mask = None
-    if spec.from_decay_of:
-        mask = truth.descends_from(particles, spec.from_decay_of)
-    if spec.cluster_radius is not None:
-        inputs = obj.select(particles, pdgids=spec.pdgids, status=spec.status, mask=mask,
-                            sort=False)
-        jets = jetalg.antikt(inputs, spec.cluster_radius)
-        out = obj.select(jets, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
-                         abs_rapidity_max=spec.max_abs_rapidity)
-    else:
-        out = obj.select(particles, pdgids=spec.pdgids, status=spec.status, pt_min=spec.min_pt,
-                         abs_eta_max=spec.max_abs_eta, abs_rapidity_max=spec.max_abs_rapidity,
-                         mask=mask)
-    if spec.require is not None:
-        from evtkin.run.ntuple_input import object_mask
-
-        out = out[object_mask(spec, out, "config")]
-    if spec.isolation_against:
-        others = obj.select(particles, pdgids=spec.isolation_against, status=1,
-                            pt_min=spec.isolation_min_pt or None, sort=False)
-        assert spec.isolation_dr is not None
-        out = out[obj.isolated(out, others, spec.isolation_dr)]
-    return out
-
+# --------------------------------------------------------------------------- composites
 
 def _leading(collection: Any) -> Any:
     return ak.firsts(collection, axis=1)
@@ -154,26 +126,11 @@ class ChunkView:
         self._busy: set[str] = set()
         cfg = plan.config
         if "particles" not in ak.fields(chunk):  # a ROOT ntuple: objects from its collections
-            from evtkin.run.ntuple_input import collection_objects
-
-            self._cache.update(collection_objects(cfg, chunk))
-            return
-        particles = chunk["particles"]
-        objs = {name: _build_object(spec, particles) for name, spec in cfg.objects.items()}
-        if any(o.isolation_objects for o in cfg.objects.values()):
-            from evtkin.run.ntuple_input import isolate_against_objects
-
-            objs = isolate_against_objects(cfg, objs)
-        if cfg.overlap_removal:
-            objs = obj.apply_overlap_removal(
-                objs, [(o.remove, o.near, o.within_dr) for o in cfg.overlap_removal]
-            )
-        # one gather per field now instead of one per use: selection, overlap removal and
-        # slicing leave chains of index nodes that every later field access would resolve again
-        self._cache.update({name: ak.to_packed(o) for name, o in objs.items()})
-        if cfg.missing_pt is not None:
-            invisible = obj.select(particles, pdgids=cfg.missing_pt.pdgids, status=1, sort=False)
-            self._cache[cfg.missing_pt.name] = obj.missing_pt(invisible)
+            self._cache.update(build.collection_objects(
+                chunk, cfg.objects, cfg.overlap_removal, cfg.missing_pt, cfg.source))
+        else:
+            self._cache.update(build.particle_objects(
+                chunk["particles"], cfg.objects, cfg.overlap_removal, cfg.missing_pt))
 
     def __len__(self) -> int:
         return len(self.chunk)

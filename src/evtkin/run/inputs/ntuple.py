@@ -1,5 +1,6 @@
-"""ROOT ntuple samples in a run: objects from mapped collections, reading only the branches the
-config uses, entry-range work units, cross sections, and the generator-level (truth) join.
+"""ROOT ntuples as a run input: reading only the branches the config uses, entry-range work
+units, cross sections, and the generator-level (truth) join. The objects are built from the
+mapped collections by :func:`evtkin.select.build.collection_objects`.
 
 A sample with ``format = "root"`` declares its branch mapping in ``[samples.NAME.input]`` (the
 table :meth:`evtkin.io.ntuple_mapping.NtupleMapping.from_dict` reads). Objects are built from a
@@ -27,100 +28,27 @@ are read and skipped (a unit in the middle of a file re-reads the start of the L
 
 from __future__ import annotations
 
-import os
-import time
-from collections.abc import Callable, Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field, replace
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import awkward as ak
 import numpy as np
 
 from evtkin.errors import ConfigError, NtupleError
-from evtkin.expr import ATTRIBUTES, Expression, ExpressionError, Node, evaluate
-from evtkin.select import kinematics as kin
-from evtkin.select import objects as obj
+from evtkin.expr import Expression, Node
+from evtkin.hists.xsec import FileTotals, XsecResult, effective_entries
+from evtkin.run.inputs.base import InputSource, UnitReading
+from evtkin.run.workunit import WorkUnit, entry_ranges
 
-__all__ = [
-    "NtupleRunInfo",
-    "TruthJoin",
-    "collection_objects",
-    "config_fields",
-    "isolate_against_objects",
-    "ntuple_entries",
-    "ntuple_xsec",
-    "object_mask",
-    "process_ntuple_unit",
-]
+if TYPE_CHECKING:  # pragma: no cover
+    from evtkin.config import AnalysisConfig, SampleSpec
+    from evtkin.io.ntuple import NtupleReader
+    from evtkin.io.ntuple_mapping import NtupleMapping
+    from evtkin.run.partial import FileRecord
+    from evtkin.run.plan import Plan
 
-Progress = Callable[[int], None]
-
-
-# --------------------------------------------------------------------------- objects
-
-def object_mask(spec: Any, objs: Any, source: str) -> Any:
-    """Jagged boolean mask of ``objs`` from the object's ``require`` condition: names are the
-    objects' fields (``btag``, ``iso``, ``pdgid``, ...) or kinematic attributes (``pt``)."""
-    fields = ak.fields(objs)
-
-    def resolve(name: str) -> Any:
-        if name in fields:
-            return objs[name]
-        if name in ATTRIBUTES:
-            return ATTRIBUTES[name](objs)
-        raise KeyError(name)
-
-    try:
-        value = evaluate(spec.require, resolve)
-    except ExpressionError as exc:
-        raise ConfigError(exc.render(f"{source}: objects.{spec.name}.require: ")) from None
-    if not isinstance(value, ak.Array) or value.ndim != 2:
-        raise ConfigError(f"{source}: objects.{spec.name}.require: {spec.require.text!r} must "
-                          "give one true/false per object")
-    return ak.fill_none(ak.values_astype(value, bool), False)
-
-
-def isolate_against_objects(cfg: Any, objs: dict[str, Any]) -> dict[str, Any]:
-    """Isolation against other defined objects (``against_objects``), on the objects as built."""
-    out = dict(objs)
-    for name, spec in cfg.objects.items():
-        if spec.isolation_objects:
-            others = ak.concatenate([objs[o] for o in spec.isolation_objects], axis=1) \
-                if len(spec.isolation_objects) > 1 else objs[spec.isolation_objects[0]]
-            if spec.isolation_min_pt:
-                others = others[kin.pt(others) > spec.isolation_min_pt]
-            out[name] = out[name][obj.isolated(out[name], others, spec.isolation_dr)]
-    return out
-
-
-def merged_collection(chunk: Any, sources: Sequence[str]) -> Any:
-    """One collection, or several merged per event (e.g. electrons and muons as leptons),
-    keeping the fields they have in common (in the first one's order)."""
-    if len(sources) == 1:
-        return chunk[sources[0]]
-    parts = [chunk[s] for s in sources]
-    common = [f for f in ak.fields(parts[0]) if all(f in ak.fields(p) for p in parts[1:])]
-    merged = ak.concatenate([p[common] for p in parts], axis=1)
-    return ak.zip({f: merged[f] for f in common}, with_name="Momentum4D")
-
-
-def collection_objects(cfg: Any, chunk: Any) -> dict[str, Any]:
-    """The config's objects (and missing pT) of one ntuple chunk: thresholds, ``require``,
-    pT ordering, isolation against objects and overlap removal in the declared order."""
-    out: dict[str, Any] = {}
-    for name, spec in cfg.objects.items():
-        coll = merged_collection(chunk, spec.source)
-        if spec.require is not None:
-            coll = coll[object_mask(spec, coll, cfg.source)]
-        out[name] = obj.select(coll, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
-                               abs_rapidity_max=spec.max_abs_rapidity)
-    out = isolate_against_objects(cfg, out)
-    if cfg.overlap_removal:
-        out = obj.apply_overlap_removal(
-            out, [(o.remove, o.near, o.within_dr) for o in cfg.overlap_removal])
-    if cfg.missing_pt is not None:
-        out[cfg.missing_pt.name] = chunk[cfg.missing_pt.source]
-    return out
+__all__ = ["NtupleRunInfo", "NtupleSource", "TruthJoin", "config_fields", "ntuple_xsec"]
 
 
 # --------------------------------------------------------------------------- what to read
@@ -132,14 +60,14 @@ def _attrs(node: Node, out: set[str]) -> None:
         _attrs(a, out)
 
 
-def _expressions(cfg: Any) -> list[Expression]:
+def _expressions(cfg: AnalysisConfig) -> list[Expression]:
     exprs = [s.require for s in cfg.steps] + list(cfg.quantities.values())
     exprs += [a.value for h in cfg.histograms.values() for a in h.axes]
     exprs += [o.require for o in cfg.objects.values() if o.require is not None]
     return exprs
 
 
-def config_fields(cfg: Any, mapping: Any) -> list[str]:
+def config_fields(cfg: AnalysisConfig, mapping: NtupleMapping) -> list[str]:
     """The ``fields=`` list for :func:`evtkin.io.ntuple.read_ntuple`: the collections the
     objects come from, with only the extra fields the config can use (attributes and ``require``
     names anywhere in the config, ``btag`` for b-tagged reconstruction, ``charge`` for
@@ -150,19 +78,19 @@ def config_fields(cfg: Any, mapping: Any) -> list[str]:
     for o in cfg.objects.values():
         if o.require is not None:
             used |= set(o.require.names)
-    for c in cfg.composites.values():
-        if c.options.get("use_b_tags"):
+    for comp in cfg.composites.values():
+        if comp.options.get("use_b_tags"):
             used.add("btag")
-        if c.options.get("opposite_charge"):
+        if comp.options.get("opposite_charge"):
             used.add("charge")
     out: list[str] = []
     for o in cfg.objects.values():
-        for src in o.source:
+        for src in o.source or ():
             c = mapping.collections[src]
             extras = [f for f in c.fields if f in used]
             out += ([f"{c.name}.{f}" for f in extras] if extras
                     else [f"{c.name}.{next(iter(c.coords))}"])
-    if cfg.missing_pt is not None:
+    if cfg.missing_pt is not None and cfg.missing_pt.source is not None:
         out.append(cfg.missing_pt.source)
     return list(dict.fromkeys(out))
 
@@ -196,18 +124,9 @@ class NtupleRunInfo:
                 "branches_read": list(self.branches), "bytes_read": self.bytes_read}
 
 
-def ntuple_entries(path: str | os.PathLike[str], mapping: Any) -> int:
-    """Number of entries of the mapped tree (for planning entry-range work units)."""
-    from evtkin.io.ntuple import describe_ntuple
-
-    return describe_ntuple(path, mapping, fields=[]).entries
-
-
-def ntuple_xsec(spec: Any, totals: Sequence[Any]) -> Any:
+def ntuple_xsec(spec: SampleSpec, totals: Sequence[FileTotals]) -> XsecResult:
     """σ bookkeeping of an ntuple sample from its files' :class:`~evtkin.hists.xsec.FileTotals`
     (module docstring: ``weights_give`` = "mean" or "sum", optional ``cross_section_pb``)."""
-    from evtkin.hists.xsec import XsecResult, effective_entries
-
     n = sum(t.total_events for t in totals)
     sw = sum(t.total_sum_w for t in totals)
     sw2 = sum(float(sum(t.sum_w2.values())) for t in totals)
@@ -287,9 +206,9 @@ class TruthJoin:
         return self._joined[numbers - self._start]
 
 
-# --------------------------------------------------------------------------- the unit
+# --------------------------------------------------------------------------- the source
 
-def _reader(plan: Any, unit: Any, spec: Any, truth: bool) -> Any:
+def _reader(plan: Plan, unit: WorkUnit, spec: SampleSpec, truth: bool) -> NtupleReader:
     from evtkin.io.ntuple import read_ntuple
 
     fields = config_fields(plan.config, spec.input)
@@ -311,92 +230,78 @@ def _reader(plan: Any, unit: Any, spec: Any, truth: bool) -> Any:
                        entry_stop=stop, fields=fields)
 
 
-def process_ntuple_unit(plan: Any, unit: Any, progress: Progress | None = None) -> Any:
-    """Read and analyse one ntuple unit (an entry range of one file); its partial result.
+class _NtupleReading(UnitReading):
+    def __init__(self, plan: Plan, unit: WorkUnit, with_truth: bool) -> None:
+        spec = plan.config.samples[unit.sample]
+        self.unit = unit
+        self.spec = spec
+        self.reader = _reader(plan, unit, spec, with_truth)
+        self.join = (TruthJoin([str(p) for p in spec.truth_files], plan.step_size,
+                               f"{unit.path} (samples.{unit.sample}.truth_files)")
+                     if with_truth else None)
+        self._tree: tuple[str, int] | None = None
+        self._names: tuple[str, ...] | None = None
 
-    The same steps as :func:`evtkin.run.units.process_unit` for LHE files; with ``truth_files``
-    the response matrices of the histograms marked ``response = true`` are filled as well.
-    """
-    from evtkin.hists.response import fill_responses, response_names
-    from evtkin.run.partial import FileRecord, PartialResult
-    from evtkin.run.plan import analyse_chunk, hist_entries
-    from evtkin.run.units import _weights, fill_by_process, sha256_of
+    def chunks(self) -> Iterator[Any]:
+        for chunk in self.reader:
+            if self._tree is None and self.reader._open is not None:
+                self._tree = (str(self.reader._open.tree_name), int(self.reader._open.entries))
+            if self._names is None:
+                self._names = tuple(str(v) for v in (self.reader.variation_names or ()))
+            yield chunk
 
-    cfg = plan.config
-    spec = cfg.samples[unit.sample]
-    sample = unit.sample
-    hist_names = plan.histograms_for(sample)
-    responses = response_names(plan, sample) if spec.truth_files else []
-    steps = {s.name: i + 1 for i, s in enumerate(cfg.steps)}
-    row_of = {n: steps[h.after] if h.after is not None else len(steps)
-              for n, h in cfg.histograms.items() if n in hist_names}
-    reader = _reader(plan, unit, spec, bool(responses))
-    join = (TruthJoin([str(p) for p in spec.truth_files], plan.step_size,
-                      f"{unit.path} (samples.{sample}.truth_files)") if responses else None)
-    result = PartialResult()
-    seconds = {"read": 0.0, "select": 0.0, "fill": 0.0}
-    variations: tuple[str, ...] | None = None
-    n_total = 0
-    tree_info: tuple[str, int] | None = None
-    t0 = time.perf_counter()
-    try:
-        for chunk in reader:
-            t1 = time.perf_counter()
-            seconds["read"] += t1 - t0
-            n = len(chunk)
-            if tree_info is None and reader._open is not None:
-                tree_info = (str(reader._open.tree_name), int(reader._open.entries))
-            if variations is None:
-                variations = tuple(str(v) for v in (reader.variation_names or ()))
-            if n == 0:
-                t0 = time.perf_counter()
-                continue
-            view, masks = analyse_chunk(plan, chunk)
-            entries = {name: hist_entries(view, name, masks[row_of[name]])
-                       for name in hist_names}
-            truth = None
-            if join is not None:
-                lhe = join.take(np.asarray(ak.to_numpy(chunk["event_number"]), dtype=np.int64))
-                truth = analyse_chunk(plan, lhe)
-            t2 = time.perf_counter()
-            seconds["select"] += t2 - t1
-            w0, wv = _weights(chunk)
-            fill_by_process(plan, result, sample, unit.file_index, chunk, masks, entries,
-                            w0, wv, variations)
-            if truth is not None:
-                pid = np.asarray(ak.to_numpy(chunk["process_id"]), dtype=np.int64)
-                pids = np.unique(pid)
-                for p in pids:
-                    in_p = None if pids.size == 1 else pid == p
-                    key = (sample, unit.file_index, int(p))
-                    fill_responses(plan, result, key, responses, (view, masks), truth, w0, in_p)
-            n_total += n
-            t0 = time.perf_counter()
-            seconds["fill"] += t0 - t2
-            if progress is not None:
-                progress(n)
-    finally:
-        reader.close()
-    seconds["read"] += time.perf_counter() - t0
-    stats = reader.stats
-    if tree_info is None:
+    def variation_names(self) -> tuple[str, ...] | None:
+        return self._names
+
+    def truth(self, chunk: Any) -> Any:
+        if self.join is None:
+            return None
+        return self.join.take(np.asarray(ak.to_numpy(chunk["event_number"]), dtype=np.int64))
+
+    def close(self) -> None:
+        self.reader.close()
+
+    def file_info(self, n_events: int) -> NtupleRunInfo:
+        reader, spec = self.reader, self.spec
+        tree = self._tree
+        if tree is None:
+            from evtkin.io.ntuple import describe_ntuple
+
+            d = describe_ntuple(self.unit.path, spec.input, fields=[])
+            tree = (d.tree, d.entries)
+        names = (self._names if self._names is not None
+                 else tuple(str(v) for v in (reader.variation_names or ())))
+        return NtupleRunInfo(
+            path=self.unit.path, tree=tree[0], entries=tree[1], weight_names=names,
+            weights_give=spec.weights_give, branches=tuple(reader.branches),
+            bytes_read=int(reader.stats.bytes_read), entries_read=n_events)
+
+
+class NtupleSource(InputSource):
+    """ROOT ntuples through a declared branch mapping (``[samples.NAME.input]``)."""
+
+    format = "root"
+
+    def work_units(self, spec: SampleSpec, file_index: int, path: str, size: int, parts: int,
+                   max_events: int | None) -> list[WorkUnit]:
+        if parts <= 1 or spec.truth_files:  # the truth join streams the files from the start
+            return super().work_units(spec, file_index, path, size, 1, max_events)
         from evtkin.io.ntuple import describe_ntuple
 
-        d = describe_ntuple(unit.path, spec.input, fields=[])
-        tree_info = (d.tree, d.entries)
-    info = NtupleRunInfo(
-        path=unit.path, tree=tree_info[0] if tree_info else str(spec.input.tree or ""),
-        entries=tree_info[1] if tree_info else 0,
-        weight_names=variations if variations is not None
-        else tuple(str(v) for v in (reader.variation_names or ())),
-        weights_give=spec.weights_give, branches=tuple(reader.branches),
-        bytes_read=int(stats.bytes_read), entries_read=n_total)
-    starts = getattr(unit, "starts_file", unit.first_event == 0)
-    entry_range = getattr(unit, "entry_range", None)
-    starts = starts and (entry_range is None or entry_range[0] == 0)
-    result.files[(sample, unit.file_index)] = FileRecord(
-        sample, unit.file_index, unit.path, os.path.getsize(unit.path),
-        sha256_of(unit.path) if starts else None, n_total, info)
-    result.seconds = seconds
-    return result
+        n = describe_ntuple(path, spec.input, fields=[]).entries
+        ranges = entry_ranges(n, parts)
+        return [WorkUnit(spec.name, file_index, path, entry_range=(a, b), part=k,
+                         n_parts=len(ranges), size=size * (b - a) // max(n, 1),
+                         format=self.format)
+                for k, (a, b) in enumerate(ranges)]
 
+    def open(self, plan: Plan, unit: WorkUnit, *, read_threads: int | None = None,
+             with_truth: bool = False) -> UnitReading:
+        return _NtupleReading(plan, unit, with_truth)
+
+    def provenance(self, info: Any) -> dict[str, Any]:
+        return info.provenance() if isinstance(info, NtupleRunInfo) else {}
+
+    def cross_section(self, spec: SampleSpec, records: Sequence[FileRecord],
+                      totals: Sequence[FileTotals]) -> XsecResult:
+        return ntuple_xsec(spec, totals)
