@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 from typing import Any
 
 from evtkin.io.lhe_header import LHEInfo, open_lhe
@@ -21,19 +22,37 @@ _WEIGHTING = {
 }
 
 
+_COUNT_MARKS = re.compile(rb"<!--|-->|</event>")
+
+
 def count_events(path: str) -> int:
-    """Number of ``</event>`` tags after ``</init>`` (a fast byte count, no parsing)."""
+    """Number of ``</event>`` tags after ``</init>`` outside XML comments (a fast byte
+    scan, no parsing): the number of events ``read_lhe`` delivers for a file it accepts."""
     stream, rest, _info = open_lhe(path)
+    n = 0
+    in_comment = False
+    tail = b""
     try:
-        n = rest.count(b"</event>")
-        tail = rest[-7:]
+        block = rest or stream.read(1 << 23)
         while True:
-            block = stream.read(1 << 23)
+            joined = tail + block
+            limit = len(joined) - 7 if block else len(joined)  # marks are at most 8 bytes
+            cut = limit
+            for m in _COUNT_MARKS.finditer(joined):
+                if m.start() >= limit:
+                    break
+                mark = m.group()
+                if in_comment:
+                    in_comment = mark != b"-->"
+                elif mark == b"<!--":
+                    in_comment = True
+                elif mark == b"</event>":
+                    n += 1
+                cut = max(cut, m.end())
             if not block:
                 break
-            joined = tail + block
-            n += joined.count(b"</event>") - tail.count(b"</event>")
-            tail = joined[-7:]
+            tail = joined[cut:]
+            block = stream.read(1 << 23)
     finally:
         stream.close()
     return n

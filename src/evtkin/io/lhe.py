@@ -117,6 +117,21 @@ def _token_at(buf: np.ndarray, pos: int) -> str:
     return bytes(buf[pos:end]).decode("utf-8", "replace")
 
 
+def _tag_at(buf: np.ndarray, pos: int) -> str:
+    """The tag (at most 40 bytes) starting at ``buf[pos]``."""
+    end = pos + 1
+    n = buf.shape[0]
+    while end < n and end - pos < 40 and buf[end] not in (62, 60, 10):
+        end += 1
+    if end < n and buf[end] == 62:
+        end += 1
+    return bytes(buf[pos:end]).decode("utf-8", "replace")
+
+
+def _name_at(buf: np.ndarray, a: int, b: int) -> str:
+    return bytes(buf[a : min(b, a + 40)]).decode("utf-8", "replace") if 0 <= a <= b else "?"
+
+
 def _message(
     status: int, buf: np.ndarray, epos: int, a: int, b: int, ids: tuple[str, ...]
 ) -> tuple[int, str]:
@@ -160,6 +175,43 @@ def _message(
         return epos, f"<weights> holds {a} values but the file declares {b} weights"
     if status == c.ERR_WGT_VALUE:
         return epos, f"<wgt> must hold exactly one number, found {a}"
+    if status == c.ERR_EVENT_OPEN:
+        return epos, (
+            f"{_tag_at(buf, epos)} inside an event: the event is not closed "
+            "(expected </event> first)"
+        )
+    if status == c.ERR_STRAY_CLOSE:
+        return epos, "</event> without an open <event> (a missing or damaged <event> line?)"
+    if status == c.ERR_UNCLOSED:
+        tag = _name_at(buf, a, b)
+        return epos, (
+            f"<{tag}> is not closed inside its event (no </{tag}> before the next event tag)"
+        )
+    if status == c.ERR_RWGT_OPEN:
+        return epos, "</event> before </rwgt>: the <rwgt> block is not closed inside its event"
+    if status == c.ERR_COMMENT:
+        return epos, (
+            "a comment opened inside an event does not close inside it (an event tag "
+            "follows before its '-->')"
+        )
+    if status == c.ERR_VALUE_CLOSE:
+        close = "</weights>" if a == 3 else "</wgt>"
+        return epos, f"expected {close} right after the value, found {_tag_at(buf, epos)!r}"
+    if status == c.ERR_SECOND_HEADER:
+        return epos, (
+            "a second LHE header (<LesHouchesEvents>) inside the stream: two files joined "
+            "into one?"
+        )
+    if status == c.ERR_DUP_WEIGHT:
+        wid = ids[a] if 0 <= a < len(ids) else str(a)
+        return epos, f"weight {wid!r} is given twice in one event"
+    if status == c.ERR_NUP_TOO_BIG:
+        return epos, (
+            f"NUP disagrees with the particle lines: NUP={a} particle lines cannot fit "
+            "before the end of the event"
+        )
+    if status == c.ERR_BAD_TAG:
+        return epos, f"malformed tag: a '<' before its closing '>' in {_tag_at(buf, epos)!r}"
     return epos, c.ERR_MESSAGES.get(status, f"malformed event (code {status})")
 
 
@@ -196,6 +248,8 @@ class _Scratch:
         self.resume = 0
         self.saw_end = False
         self.stopped = False
+        #: (absolute position, message) of each damaged part skipped (lenient parses)
+        self.skips: list[tuple[int, str]] = []
 
     def _alloc_events(self, cap: int, keep: int = 0) -> None:
         old = getattr(self, "ev_pid", None)
@@ -231,16 +285,27 @@ class _Scratch:
                 tok = _token_at(buf, bad)
                 raise _ScanFailure(base + bad, f"expected a number, found {tok!r}")
 
-    def parse(self, kernel: Callable[..., Any], buf: np.ndarray, base: int, stop: int) -> None:
+    def parse(
+        self,
+        kernel: Callable[..., Any],
+        buf: np.ndarray,
+        base: int,
+        stop: int,
+        lenient: bool = False,
+        groups: bool = False,
+    ) -> None:
         """Parse the whole events of ``buf`` (``base``: its absolute stream offset).
 
         Events (groups) whose tag starts at absolute offset >= ``stop`` are not read.
-        Raises :class:`_ScanFailure` for malformed input.
+        Raises :class:`_ScanFailure` for malformed input; with ``lenient`` a damaged
+        event (group) is skipped instead: the scan resumes at the next event (group)
+        start and ``skips`` records where and why.
         """
         st = self.st
         st[:] = 0
         st[c.ST_STOP] = min(max(stop - base, 0), 1 << 62)
         saw_end = False
+        self.skips = []
         while True:
             kernel(
                 buf, self.wid_bytes, self.wid_off, self.ev_pid, self.ev_f, self.offsets,
@@ -253,9 +318,13 @@ class _Scratch:
                     status, buf, int(st[c.ST_ERRPOS]), int(st[c.ST_A]), int(st[c.ST_B]),
                     self.ids,
                 )  # fmt: skip
-                # slow tokens before the error may hide an earlier malformed number
-                self._fix_slow(buf, base, min(int(st[c.ST_NSLOW]), self.slow.shape[0]))
-                raise _ScanFailure(base + epos, msg)
+                if not lenient:
+                    raise _ScanFailure(base + epos, msg)
+                # the counts in st are those of the last commit point; go on from the
+                # next event (group) start after the damaged part
+                self.skips.append((base + epos, msg))
+                st[c.ST_POS] = _next_start(buf, max(epos, int(st[c.ST_POS]) + 1), groups)
+                continue
             if status != c.ST_FULL:
                 break
             which = int(st[c.ST_A])
@@ -277,6 +346,17 @@ class _Scratch:
         self.resume = int(st[c.ST_POS])
         self.saw_end = saw_end
         self.stopped = bool(st[c.ST_STOPPED])
+
+
+_START = re.compile(rb"<event[ \t\r\n>/<]")
+_GROUP_START = re.compile(rb"<eventgroup[ \t\r\n>/<]")
+
+
+def _next_start(buf: np.ndarray, pos: int, groups: bool) -> int:
+    """Offset of the first event (``groups``: event group) tag at or after ``pos``, or
+    the end of ``buf``."""
+    m = (_GROUP_START if groups else _START).search(memoryview(buf), pos)  # type: ignore[arg-type]
+    return m.start() if m is not None else int(buf.shape[0])
 
 
 # ------------------------------------------------------------------ one chunk's columns
@@ -808,8 +888,10 @@ def _iterate(
     free: list[_Scratch] = []
     slabs = _SlabPool()
 
+    lenient = not strict
+
     def work(s: _Scratch, base: int, arr: np.ndarray) -> _Scratch:
-        s.parse(kernel, arr, base, stop_abs)
+        s.parse(kernel, arr, base, stop_abs, lenient, groups)
         return s
 
     def scratch() -> _Scratch:
@@ -834,6 +916,7 @@ def _iterate(
     saw_end = False
     stopped = False
     eof = False
+    skipped: list[tuple[int, str]] = []
     try:
         reader_done = False
         carry: tuple[int, np.ndarray] | None = None
@@ -854,13 +937,14 @@ def _iterate(
                     arr = np.concatenate([carr, arr])
                     base = cbase
                     carry = None
-                    s.parse(kernel, arr, base, stop_abs)
+                    s.parse(kernel, arr, base, stop_abs, lenient, groups)
                 else:
                     s = fut.result()
             except _ScanFailure as exc:
                 raise LHEError(f"{name}: line {_line_at(source, exc.pos)}: {exc.message}") from None
             saw_end = saw_end or s.saw_end
             stopped = stopped or s.stopped
+            skipped.extend(s.skips)
             eof = eof or item_eof
             # hand the events to chunks of exactly ``step`` (groups kept whole)
             a = 0
@@ -908,6 +992,8 @@ def _iterate(
                 _problem(msg, strict)
                 saw_end = True  # reported already
             reader.recycle(raw)
+        if skipped:
+            _warn_skipped(source, name, skipped)
         if not saw_end and not stopped and eof and need_end:
             _problem(
                 f"{name}: the file ends without </LesHouchesEvents> after "
@@ -924,6 +1010,41 @@ def _iterate(
             fut.cancel()
         if pool is not None:
             pool.shutdown(wait=True)
+
+
+def _lines_at(source: Source, positions: list[int]) -> list[int]:
+    """1-based line numbers of absolute decompressed byte offsets (one pass)."""
+    order = sorted(range(len(positions)), key=positions.__getitem__)
+    out = [0] * len(positions)
+    lines = 1
+    done = 0
+    k = 0
+    with open_binary(source) as fh:
+        while k < len(order):
+            target = positions[order[k]]
+            if done < target:
+                block = fh.read(min(1 << 22, target - done))
+                if not block:
+                    target = done
+                else:
+                    lines += block.count(b"\n")
+                    done += len(block)
+                    continue
+            out[order[k]] = lines
+            k += 1
+    return out
+
+
+def _warn_skipped(source: Source, name: str, skipped: list[tuple[int, str]]) -> None:
+    lines = _lines_at(source, [p for p, _ in skipped])
+    shown = ", ".join(str(x) for x in lines[:10]) + (", ..." if len(lines) > 10 else "")
+    warnings.warn(
+        f"{name}: skipped {len(skipped)} damaged part(s) of the event stream, at line(s) "
+        f"{shown}; the first: line {lines[0]}: {skipped[0][1]}; every intact event is "
+        "delivered",
+        LHEWarning,
+        stacklevel=4,
+    )
 
 
 def _problem(msg: str, strict: bool) -> None:

@@ -193,7 +193,10 @@ def _scan(data: bytes, eof: bool, name: str) -> tuple[str, int, int, int, int, i
                     f"{name}: line {_line_of(data, lt)}: not an LHE file: expected "
                     f"'<LesHouchesEvents version=...>', found '<{closing.decode()}{tag}'"
                 )
-            attrs = parse_attributes(data[m.end() : gt].decode("utf-8", "replace"))
+            try:
+                attrs = parse_attributes(data[m.end() : gt].decode("utf-8", "replace"))
+            except BadText as exc:
+                raise LHEError(f"{name}: line {_line_of(data, lt)}: {exc}") from None
             version = attrs.get("version", "")
             root_end = gt + 1
             pos = root_end
@@ -294,8 +297,24 @@ def read_preamble(stream: BinaryIO, name: str) -> tuple[bytes, tuple[str, int, i
 _ATTR = re.compile(r"""([A-Za-z_][\w:.-]*)\s*=\s*(?:"([^"]*)"|'([^']*)'|([^\s>/"']+))""")
 
 
-_ENTITY = re.compile(r"&(lt|gt|amp|quot|apos|#[0-9]+|#[xX][0-9a-fA-F]+);")
+# numeric references with at most 7 decimal / 6 hex digits (U+10FFFF is 1114111): longer
+# ones are never valid and are left as they are, unconverted
+_ENTITY = re.compile(r"&(lt|gt|amp|quot|apos|#[0-9]{1,7}|#[xX][0-9a-fA-F]{1,6});")
 _NAMED = {"lt": "<", "gt": ">", "amp": "&", "quot": '"', "apos": "'"}
+
+
+class BadText(ValueError):
+    """Text of a preamble that cannot be decoded (the caller adds the file name)."""
+
+
+def _xml_char(code: int) -> bool:
+    """XML 1.0 sec. 2.2 ``Char``: tab, LF, CR, U+0020-D7FF, U+E000-FFFD, U+10000-10FFFF."""
+    return (
+        code in (0x9, 0xA, 0xD)
+        or 0x20 <= code <= 0xD7FF
+        or 0xE000 <= code <= 0xFFFD
+        or 0x10000 <= code <= 0x10FFFF
+    )
 
 
 def _entity(m: re.Match[str]) -> str:
@@ -303,11 +322,19 @@ def _entity(m: re.Match[str]) -> str:
     if name[0] != "#":
         return _NAMED[name]
     code = int(name[2:], 16) if name[1] in "xX" else int(name[1:])
-    return chr(code) if 0 < code < 0x110000 else m.group(0)
+    if not _xml_char(code):  # a surrogate, NUL, U+FFFE, beyond U+10FFFF ...
+        raise BadText(
+            f"the character reference {m.group(0)!r} is not a valid XML character "
+            "(XML 1.0 sec. 2.2)"
+        )
+    return chr(code)
 
 
 def xml_unescape(text: str) -> str:
-    """Replace the five XML entities and numeric character references (XML 1.0, sec. 4.6)."""
+    """Replace the five XML entities and numeric character references (XML 1.0, sec. 4.6).
+
+    Raises :class:`BadText` for a reference to a code point that is not an XML character
+    (a surrogate, for example)."""
     return _ENTITY.sub(_entity, text) if "&" in text else text
 
 
@@ -349,11 +376,14 @@ def _numbers(line: str, kinds: str, name: str, lineno: int, what: str) -> list[f
     out: list[float | int] = []
     for tok, kind in zip(toks, kinds, strict=True):
         try:
+            if kind == "i" and len(tok) > 12:  # far beyond 32 bits (and int()'s digit limit)
+                raise ValueError(tok)
             out.append(int(tok) if kind == "i" else _to_float(tok))
         except ValueError:
             expected = "an integer" if kind == "i" else "a number"
             raise LHEError(
-                f"{name}: line {lineno}: {what}: expected {expected}, found {tok!r}"
+                f"{name}: line {lineno}: {what}: expected {expected}, found "
+                f"{tok[:40] + ('...' if len(tok) > 40 else '')!r}"
             ) from None
     return out
 
@@ -419,6 +449,43 @@ _XSECINFO = re.compile(r"<xsecinfo\b([^>]*?)/?>", re.S)
 
 def parse_preamble(data: bytes, parts: tuple[str, int, int, int, int, int], name: str) -> LHEInfo:
     """Build the :class:`LHEInfo` from the bytes and ranges found by ``read_preamble``."""
+    try:
+        return _parse_preamble(data, parts, name)
+    except BadText as exc:
+        raise LHEError(f"{name}: {exc}") from None
+
+
+def _check_values(
+    v: list[float | int], processes: list[Process], name: str, lineno: int
+) -> None:
+    """Header values within their meaning (LHEF 1.0 / Les Houches accord HEPRUP)."""
+    for k in (0, 1, 4, 5, 6, 7, 8):
+        if not -(2**31) <= int(v[k]) <= 2**31 - 1:
+            raise LHEError(f"{name}: line {lineno}: <init> beam line: {v[k]} does not fit 32 bits")
+    for k in (2, 3):
+        e = float(v[k])
+        if not (math.isfinite(e) and e >= 0.0):
+            raise LHEError(
+                f"{name}: line {lineno}: <init> beam line: EBMUP{k - 1} must be a "
+                f"non-negative beam energy in GeV, found {e!r}"
+            )
+    for j, p in enumerate(processes, start=1):
+        values = (p.xsec_pb, p.xsec_err_pb, p.max_weight)
+        if not all(math.isfinite(x) for x in values) or p.xsec_err_pb < 0:
+            raise LHEError(
+                f"{name}: line {lineno + j}: <init> process line: XSECUP, XERRUP and XMAXUP "
+                f"must be finite and XERRUP >= 0, found {values}"
+            )
+        if not -(2**31) <= p.process_id <= 2**31 - 1:
+            raise LHEError(
+                f"{name}: line {lineno + j}: <init> process line: LPRUP {p.process_id} "
+                "does not fit 32 bits"
+            )
+
+
+def _parse_preamble(
+    data: bytes, parts: tuple[str, int, int, int, int, int], name: str
+) -> LHEInfo:
     version, _root_end, h0, h1, i0, events_offset = parts
     i1 = data.rfind(b"</init", i0, events_offset)
     init_line0 = _line_of(data, i0)
@@ -452,6 +519,7 @@ def parse_preamble(data: bytes, parts: tuple[str, int, int, int, int, int], name
     for ln, text in numeric[1:]:
         x = _numbers(text, "fffi", name, ln, "<init> process line (XSECUP XERRUP XMAXUP LPRUP)")
         processes.append(Process(int(x[3]), float(x[0]), float(x[1]), float(x[2])))
+    _check_values(v, processes, name, lineno)
 
     # weight declarations: <initrwgt> may sit in <header> (LHEF 3.0) or in <init>
     decl_text = init_text

@@ -43,6 +43,21 @@ particle line stops the scan with :data:`ERR_LINE`; :func:`diagnose_line` then w
 the exact message on the Python side (errors are rare, so their analysis need not be
 compiled).
 
+Structure is checked as the scan goes (LHEF 1.0, hep-ph/0609017: an event is one
+``<event>`` element; XML 1.0: comments hold no markup), with the same verdicts as the
+fallback scanner: every ``<event>`` closes before the next event tag (``ERR_EVENT_OPEN``;
+a ``</event>`` outside an event is ``ERR_STRAY_CLOSE``); an element inside an event closes
+inside it (``ERR_UNCLOSED``, ``ERR_RWGT_OPEN``); a comment opened inside an event holds no
+event tag (``ERR_COMMENT``); a ``<wgt>`` value or ``<weights>`` list is followed by its
+closing tag (``ERR_VALUE_CLOSE``); a ``<`` inside a tag is ``ERR_BAD_TAG``; a weight is
+given at most once per event (``ERR_DUP_WEIGHT``); every integer field fits 32 bits;
+a NUP too large for the bytes that follow is ``ERR_NUP_TOO_BIG`` (the caller never grows
+its columns for an untrusted count); a second ``<LesHouchesEvents>`` is
+``ERR_SECOND_HEADER``. Slow-path tokens are checked to be numbers in the kernel (one
+linear pass, :func:`_number_ok`), so errors come in text order. On an error ``st`` holds
+the counts of the last commit point and ``st[ST_POS]`` the start of the damaged event,
+so that a lenient caller can resume at the next event start.
+
 Importing this module does not import numba: :func:`compiled_kernel` compiles (or loads
 from the cache) on first use, for the argument types the reader passes. The cold compile
 uses numba's pipeline without the passes that leave this kernel unchanged, and memoised
@@ -96,6 +111,7 @@ ST_STOP = 7  # in: events (groups) whose tag starts at or after this offset are 
 ST_A = 8  # out: error detail / which column is full (1 events, 2 particles, 3 slow)
 ST_B = 9  # out: error detail
 ST_STOPPED = 10  # out: 1 if the scan stopped at ST_STOP
+ST_ENSLOW = 11  # out, errors only: entries of the slow list at the error (ST_NSLOW: committed)
 ST_SIZE = 16
 
 # statuses
@@ -112,6 +128,17 @@ ERR_FIELD_COUNT = 16  # wrong number of fields (A = found, B = expected)
 ERR_WGT_VALUE = 17  # <wgt> must hold exactly one number (A = found)
 ERR_NEGATIVE_NUP = 18
 ERR_LINE = 19  # malformed event line (B = 6) or particle line (B = 13) at errpos
+# structure (LHEF 1.0: an event is one <event> element; its optional blocks close inside it)
+ERR_EVENT_OPEN = 20  # the event is not closed before this tag (A, B = tag name span)
+ERR_STRAY_CLOSE = 21  # </event> outside an event
+ERR_UNCLOSED = 22  # an element inside the event does not close inside it (A, B = name span)
+ERR_RWGT_OPEN = 23  # </event> before </rwgt>
+ERR_COMMENT = 24  # a comment opened inside an event does not close inside it
+ERR_VALUE_CLOSE = 25  # the value of <wgt>/<weights> is not followed by its closing tag (A = kind)
+ERR_SECOND_HEADER = 26  # a second <LesHouchesEvents> in the stream
+ERR_DUP_WEIGHT = 27  # a weight given twice in one event (A = column)
+ERR_NUP_TOO_BIG = 28  # NUP particle lines cannot fit before </event> (A = NUP)
+ERR_BAD_TAG = 29  # a '<' inside a tag (A = its position)
 
 FULL_EVENTS = 1
 FULL_PARTICLES = 2
@@ -128,7 +155,20 @@ ERR_MESSAGES = {
     ERR_WGT_VALUE: "<wgt> must hold exactly one number",
     ERR_NEGATIVE_NUP: "NUP must not be negative",
     ERR_LINE: "malformed line",
+    ERR_EVENT_OPEN: "the event is not closed",
+    ERR_STRAY_CLOSE: "</event> outside an event",
+    ERR_UNCLOSED: "an element is not closed inside its event",
+    ERR_RWGT_OPEN: "<rwgt> is not closed inside its event",
+    ERR_COMMENT: "a comment is not closed inside its event",
+    ERR_VALUE_CLOSE: "a weight value is not followed by its closing tag",
+    ERR_SECOND_HEADER: "a second LHE header in the stream",
+    ERR_DUP_WEIGHT: "a weight given twice in one event",
+    ERR_NUP_TOO_BIG: "NUP exceeds the particle lines",
+    ERR_BAD_TAG: "malformed tag",
 }
+
+#: smallest particle line: 13 one-character fields, 12 separators and a line end
+MIN_PARTICLE_LINE = 26
 
 # slow-list targets: 0-3 event floats, 10-16 particle floats, 20 weights (flat index)
 T_EVF = 0
@@ -147,6 +187,7 @@ _K_EVENTGRO = int.from_bytes(b"eventgro", "big")
 _K_RWGT = int.from_bytes(b"rwgt", "big")
 _K_WEIGHTS = int.from_bytes(b"weights", "big")
 _K_WGT = int.from_bytes(b"wgt", "big")
+_K_LESHOUCH = int.from_bytes(b"LesHouch", "big")
 
 # byte classes (bit flags), looked up in _CC: one table load instead of a chain of tests
 C_BLANK = 1  # space, tab, CR
@@ -154,7 +195,7 @@ C_LF = 2  # newline
 C_SPACE = C_BLANK | C_LF
 C_TOKEN_END = 4  # what may follow a number: blank, newline or '<'
 C_LINE_END = 8  # newline, '<' or '#'
-C_NAME_END = 16  # end of a tag name: blank, newline, '>' or '/'
+C_NAME_END = 16  # end of a tag name: blank, newline, '>', '/' or '<'
 C_EXP = 32  # exponent letters e E d D
 C_HSPACE = 64  # space, tab
 C_NUM_START = 128  # + - . and digits
@@ -167,7 +208,7 @@ def _byte_classes() -> np.ndarray:
         C_LF: b"\n",
         C_TOKEN_END: b" \t\r\n<",
         C_LINE_END: b"\n<#",
-        C_NAME_END: b" \t\r\n>/",
+        C_NAME_END: b" \t\r\n>/<",
         C_EXP: b"eEdD",
         C_HSPACE: b" \t",
         C_NUM_START: b"+-.0123456789",
@@ -179,24 +220,89 @@ def _byte_classes() -> np.ndarray:
 
 
 _CC = _byte_classes()
+_LHE_ROOT = np.frombuffer(b"LesHouchesEvents", dtype=np.uint8).copy()
+_INFINITY = np.frombuffer(b"infinity", dtype=np.uint8).copy()
+_CLOSE_WGT = np.frombuffer(b"</wgt", dtype=np.uint8).copy()
+_CLOSE_WEIGHTS = np.frombuffer(b"</weights", dtype=np.uint8).copy()
 
 
 # ------------------------------------------------------------------ cold-path helpers
 # Compiled with the kernel (see compiled_kernel); called once per tag, never per number.
 
 
-def _tag_scan(buf, pos, n):  # uint8[:], int, int -> (int, int, int, int)
+def _event_boundary(buf, p, n):  # uint8[:], int, int -> bool
+    """Whether the ``<`` at ``buf[p]`` opens one of the tags that bound events:
+    ``<event>``, ``</event>``, ``<eventgroup>``, ``</eventgroup>`` or
+    ``<LesHouchesEvents>``/``</LesHouchesEvents>`` (the name followed by a name end)."""
+    q = p + 1
+    if q < n and buf[U(q)] == 47:
+        q += 1
+    if q + 5 < n and (
+        buf[U(q)] == 101  # e
+        and buf[U(q + 1)] == 118  # v
+        and buf[U(q + 2)] == 101  # e
+        and buf[U(q + 3)] == 110  # n
+        and buf[U(q + 4)] == 116  # t
+    ):
+        c = buf[U(q + 5)]
+        if _CC[c] & C_NAME_END:
+            return True
+        return (
+            q + 10 < n
+            and c == 103  # g
+            and buf[U(q + 6)] == 114  # r
+            and buf[U(q + 7)] == 111  # o
+            and buf[U(q + 8)] == 117  # u
+            and buf[U(q + 9)] == 112  # p
+            and _CC[buf[U(q + 10)]] & C_NAME_END != 0
+        )
+    if q + 16 < n and buf[U(q)] == 76:  # 'L'
+        for t in range(16):
+            if buf[U(q + t)] != _LHE_ROOT[U(t)]:
+                return False
+        return _CC[buf[U(q + 16)]] & C_NAME_END != 0
+    return False
+
+
+def _line_runs_out(buf, pos, n):  # uint8[:], int, int -> bool
+    """Whether the event or particle line continuing at ``pos`` reaches the end of the
+    buffer before its end (a newline, ``<`` or ``#`` where a token would start): then a
+    malformed line may only be cut short."""
+    while pos < n:
+        c = buf[U(pos)]
+        if _CC[c] & C_BLANK:
+            pos += 1
+        elif _CC[c] & C_LINE_END:
+            return False
+        else:
+            while pos < n and not _CC[buf[U(pos)]] & C_TOKEN_END:
+                pos += 1
+    return True
+
+
+def _tag_scan(buf, pos, n, in_event):  # uint8[:], int, int, bool -> (int, int, int, int)
     """Scan the tag (or comment) starting with the ``<`` at ``buf[pos]``.
 
     Returns ``(ne, gt, wid_s, wid_e)``: the end of the tag name (-1 for a comment
     ``<!-- -->``), the position of the closing ``>`` (>= n when the buffer ends first)
     and the span of the value of an ``id=`` attribute (-1 if none). Quoted attribute
-    values may hold ``>``.
+    values may hold ``>``. A ``<`` inside the tag (quoted or not) makes it malformed:
+    ``ne = -2`` and ``gt`` is that ``<``. Inside an event (``in_event``) a comment that
+    holds an event boundary (see :func:`_event_boundary`) did not close where it opened:
+    ``ne = -3``.
     """
     if pos + 3 < n and buf[U(pos + 1)] == 33 and buf[U(pos + 2)] == 45 and buf[U(pos + 3)] == 45:
         p = pos + 4
         while p + 2 < n and not (buf[U(p)] == 45 and buf[U(p + 1)] == 45 and buf[U(p + 2)] == 62):
+            if in_event and buf[U(p)] == 60 and _event_boundary(buf, p, n):
+                return -3, p, -1, -1
             p += 1
+        if in_event and p + 2 >= n:
+            # the comment runs to the end of the buffer: a boundary in its last bytes?
+            while p < n:
+                if buf[U(p)] == 60 and _event_boundary(buf, p, n):
+                    return -3, p, -1, -1
+                p += 1
         return -1, p + 2, -1, -1
     ns = pos + 2 if pos + 1 < n and buf[U(pos + 1)] == 47 else pos + 1
     ne = ns
@@ -208,6 +314,8 @@ def _tag_scan(buf, pos, n):  # uint8[:], int, int -> (int, int, int, int)
     wid_e = -1
     while gt < n:
         c = buf[U(gt)]
+        if c == 60:  # '<' inside a tag
+            return -2, gt, -1, -1
         if q != 0:
             if c == q:
                 q = 0
@@ -224,7 +332,8 @@ def _tag_scan(buf, pos, n):  # uint8[:], int, int -> (int, int, int, int)
                 while b > ne and _CC[buf[U(b)]] & C_HSPACE:
                     b -= 1
                 if (
-                    b - 2 >= ne
+                    wid_s < 0  # the first id= only
+                    and b - 2 >= ne
                     and buf[U(b)] == 100
                     and buf[U(b - 1)] == 105
                     and _CC[buf[U(b - 2)]] & (C_HSPACE | C_LF)
@@ -261,22 +370,97 @@ def _find_weight(buf, wid_s, wid_e, wid_bytes, wid_off, wnext, nw):
 
 def _skip_element(buf, pos, n, ns, nlen):
     """Position after the closing tag ``</name>`` of the element whose name is
-    ``buf[ns:ns + nlen]``, searched from ``pos``; -1 if the buffer ends first."""
-    while pos + nlen + 2 < n:
-        if buf[U(pos)] == 60 and buf[U(pos + 1)] == 47:
-            same = True
-            for t in range(nlen):
-                if buf[U(pos + 2 + t)] != buf[U(ns + t)]:
-                    same = False
-                    break
-            if same:
-                c = buf[U(pos + 2 + nlen)]
-                if c == 62 or _CC[c] & C_SPACE:
-                    while pos < n and buf[U(pos)] != 62:
-                        pos += 1
-                    return pos + 1
+    ``buf[ns:ns + nlen]``, searched from ``pos``; -1 if the buffer ends first, -2 if an
+    event boundary (:func:`_event_boundary`) comes first: the element does not close
+    inside its event."""
+    while pos < n:
+        if buf[U(pos)] == 60:
+            if pos + nlen + 2 < n and buf[U(pos + 1)] == 47:
+                same = True
+                for t in range(nlen):
+                    if buf[U(pos + 2 + t)] != buf[U(ns + t)]:
+                        same = False
+                        break
+                if same:
+                    c = buf[U(pos + 2 + nlen)]
+                    if c == 62 or _CC[c] & C_SPACE:
+                        while pos < n and buf[U(pos)] != 62:
+                            pos += 1
+                        return pos + 1
+            if _event_boundary(buf, pos, n):
+                return -2
         pos += 1
     return -1
+
+
+def _end_tag(buf, pos, n, close):
+    """After a ``<wgt>`` value or a ``<weights>`` list: the position after its closing tag
+    ``close`` (``b"</wgt"`` or ``b"</weights"`` as bytes) that must start at ``buf[pos]``;
+    -1 if the buffer ends first, -2 if something else follows the value."""
+    L = close.shape[0]
+    for t in range(L):
+        if pos + t >= n:
+            return -1
+        if buf[U(pos + t)] != close[U(t)]:
+            return -2
+    if pos + L >= n:
+        return -1
+    if not _CC[buf[U(pos + L)]] & C_NAME_END:
+        return -2
+    ne, gt, _s, _e = _tag_scan(buf, pos, n, True)
+    if ne == -2:
+        return -2
+    if gt >= n:
+        return -1
+    return gt + 1
+
+
+def _number_ok(buf, s, e):  # uint8[:], int, int -> bool
+    """Whether ``buf[s:e]`` is a number token :func:`parse_slow_token` accepts (one
+    linear pass): ``[+-]`` digits with at most one ``.`` (at least one digit), then an
+    optional exponent (``e E d D`` or, Fortran style, a bare sign, then digits); or
+    ``nan``, ``inf``, ``infinity`` in any case."""
+    p = s
+    if p < e and (buf[U(p)] == 43 or buf[U(p)] == 45):
+        p += 1
+    c0 = buf[U(p)] | 32 if p < e else 0
+    if c0 == 110 or c0 == 105:  # nan / inf / infinity
+        L = e - p
+        if L == 3:
+            a, b, c = c0, buf[U(p + 1)] | 32, buf[U(p + 2)] | 32
+            return (a == 110 and b == 97 and c == 110) or (a == 105 and b == 110 and c == 102)
+        if L == 8:
+            for t in range(8):  # noqa: SIM110 - a loop numba compiles (no generator)
+                if (buf[U(p + t)] | 32) != _INFINITY[U(t)]:
+                    return False
+            return True
+        return False
+    digits = 0
+    while p < e and U(buf[U(p)]) - U(48) <= U(9):
+        p += 1
+        digits += 1
+    if p < e and buf[U(p)] == 46:
+        p += 1
+        while p < e and U(buf[U(p)]) - U(48) <= U(9):
+            p += 1
+            digits += 1
+    if digits == 0:
+        return False
+    if p == e:
+        return True
+    c = buf[U(p)]
+    if _CC[c] & C_EXP:
+        p += 1
+        if p < e and (buf[U(p)] == 43 or buf[U(p)] == 45):
+            p += 1
+    elif c == 43 or c == 45:
+        p += 1
+    else:
+        return False
+    x0 = p
+    while p < e and U(buf[U(p)]) - U(48) <= U(9):
+        p += 1
+    return p > x0 and p == e
 
 
 def scan_kernel_source(  # one state machine on purpose (see module docstring)
@@ -325,6 +509,8 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
     status = ST_OK
     in_group = False
     g_first = 0
+    # seen[j] == ev: weight column j was given in event ev (a weight at most once per event)
+    seen = np.full(nw, -1, np.int64)
 
     # state: 0 between events, 1 event line, 2 particle line, 3 number run,
     #        4 optional information, 5 inside <rwgt>, 6 a <wgt> value follows,
@@ -369,6 +555,12 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
         elif state >= 6:
             # the value of a <wgt> tag for weight column wcol (6), or a <weights> list (7)
             if state == 6:
+                if seen[U(wcol)] == ev:
+                    status = ERR_DUP_WEIGHT
+                    st[ST_ERRPOS] = pos
+                    st[ST_A] = wcol
+                    break
+                seen[U(wcol)] = ev
                 kind = 4
                 wnext = wcol + 1
                 dbase = ev * nw + wcol
@@ -385,11 +577,12 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
             # fields [0, ni) are integers (at most ilim digits), fn fields in all (-1: any)
             fn = 6 if kind == 1 else 13 if kind == 2 else -1
             ni = 2 if kind == 1 else 6 if kind == 2 else 0
-            ilim = 18 if kind == 1 else 10
+            ilim = 18  # digits (leading zeros too); the value must fit 32 bits
             blank = C_SPACE if kind >= 3 else C_BLANK  # <weights>/<wgt>: newlines too
             iend = C_SPACE if kind == 1 else C_BLANK  # what may follow an integer
             full = False
             bad = False
+            badnum = -1  # the first stored token that is no number
             fi = 0
             while True:
                 while pos < n and _CC[buf[U(pos)]] & blank:
@@ -428,7 +621,7 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                             nd = 0
                     if neg:
                         mant = -mant
-                    if nd == 0 or nd > ilim or (kind == 2 and not _I32_MIN <= mant <= _I32_MAX):
+                    if nd == 0 or nd > ilim or not _I32_MIN <= mant <= _I32_MAX:
                         bad = True
                         break
                     if kind == 2:
@@ -445,6 +638,20 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                             status = ERR_NEGATIVE_NUP
                             break
                         if npart + nup > p_cap:
+                            if nup > (n - pos) // MIN_PARTICLE_LINE + 1:
+                                # the lines cannot fit in what follows: never grow the
+                                # columns for an untrusted count
+                                status = ST_INCOMPLETE
+                                q = pos
+                                while q + 7 < n:
+                                    c = buf[U(q)]
+                                    if c == 60 and buf[U(q + 1)] == 47 and _event_boundary(
+                                        buf, q, n
+                                    ):
+                                        status = ERR_NUP_TOO_BIG
+                                        break
+                                    q += 1
+                                break
                             status = ST_FULL
                             break
                     fi += 1
@@ -498,6 +705,8 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     slow_token = True
                 if kind == 3 and k >= nw:
                     continue  # surplus <weights> values: counted, not stored
+                if slow_token and badnum < 0 and not _number_ok(buf, s, pos):
+                    badnum = s
                 at = dbase + k * dstride
                 if kind == 2:
                     pff[U(at)] = v
@@ -516,8 +725,19 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     slow[U(nslow), 3] = pos
                     nslow += 1
             # ---- end of the run
+            if (status in (ERR_NEGATIVE_NUP, ERR_NUP_TOO_BIG)) and _line_runs_out(
+                buf, pos, n
+            ):
+                status = ST_INCOMPLETE  # a damaged line that is cut short: cut short
+                break
             if status == ERR_NEGATIVE_NUP:
                 st[ST_ERRPOS] = line0
+                break
+            if status == ERR_NUP_TOO_BIG:
+                st[ST_ERRPOS] = line0
+                st[ST_A] = nup
+                break
+            if status == ST_INCOMPLETE:
                 break
             if status == ST_FULL:
                 st[ST_A] = FULL_PARTICLES
@@ -531,7 +751,10 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                 break
             if kind <= 2:
                 c = buf[U(pos)]
-                if bad or fi != fn or not _CC[c] & C_LINE_END:
+                if bad or fi != fn or not _CC[c] & C_LINE_END or badnum >= 0:
+                    if _line_runs_out(buf, pos, n):
+                        status = ST_INCOMPLETE  # a damaged line that is cut short
+                        break
                     status = ERR_LINE
                     st[ST_ERRPOS] = line0
                     st[ST_B] = 6 if kind == 1 else 13
@@ -543,21 +766,56 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                 state = 2 if ip < nup else 4
                 continue
             if kind == 3:
+                if badnum >= 0:
+                    status = ERR_NUMBER
+                    st[ST_ERRPOS] = badnum
+                    break
                 if fi != nw:
                     status = ERR_WEIGHT_COUNT
                     st[ST_ERRPOS] = pos
                     st[ST_A] = fi
                     st[ST_B] = nw
                     break
+                for j in range(nw):
+                    if seen[U(j)] == ev:
+                        status = ERR_DUP_WEIGHT
+                        st[ST_ERRPOS] = line0
+                        st[ST_A] = j
+                        break
+                    seen[U(j)] = ev
+                if status == ERR_DUP_WEIGHT:
+                    break
             elif fi != 1 or buf[U(pos)] != 60:
                 status = ERR_WGT_VALUE
                 st[ST_ERRPOS] = line0
                 st[ST_A] = fi
                 break
-            # skip the closing tag '</weights>' or '</wgt>'
-            while pos < n and buf[U(pos)] != 62:
-                pos += 1
-            pos += 1
+            elif badnum >= 0:
+                status = ERR_NUMBER
+                st[ST_ERRPOS] = badnum
+                break
+            # the closing tag '</weights>' or '</wgt>' must follow
+            if (
+                kind == 4
+                and pos + 5 < n
+                and buf[U(pos + 1)] == 47
+                and buf[U(pos + 2)] == 119
+                and buf[U(pos + 3)] == 103
+                and buf[U(pos + 4)] == 116
+                and buf[U(pos + 5)] == 62
+            ):
+                pos += 6  # '</wgt>'
+            else:
+                e = _end_tag(buf, pos, n, _CLOSE_WGT if kind == 4 else _CLOSE_WEIGHTS)
+                if e == -1:
+                    status = ST_INCOMPLETE
+                    break
+                if e < 0:
+                    status = ERR_VALUE_CLOSE
+                    st[ST_ERRPOS] = pos
+                    st[ST_A] = kind
+                    break
+                pos = e
             state = 4 if kind == 3 else 5
             continue
 
@@ -624,7 +882,13 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                 continue
         # ---- a tag starts at pos
         t0 = pos
-        ne, gt, wid_s, wid_e = _tag_scan(buf, pos, n)
+        ne, gt, wid_s, wid_e = _tag_scan(buf, pos, n, state != 0)
+        if ne < -1:
+            # a '<' inside the tag, or a comment that does not close inside its event
+            status = ERR_BAD_TAG if ne == -2 else ERR_COMMENT
+            st[ST_ERRPOS] = t0
+            st[ST_A] = gt
+            break
         if ne < 0 or ne >= n:
             # a comment, or a tag name that runs to the end of the buffer
             if gt >= n:
@@ -653,6 +917,14 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     in_group = False
                 if nlen > 0 and buf[U(ns)] == 76:  # '</L': </LesHouchesEvents>
                     st[ST_SAWEND] = 1
+                if is_event:  # </event> with no <event> open
+                    status = ERR_STRAY_CLOSE
+                    st[ST_ERRPOS] = t0
+                    break
+            elif nlen == 16 and key == _K_LESHOUCH and _event_boundary(buf, t0, n):
+                status = ERR_SECOND_HEADER
+                st[ST_ERRPOS] = t0
+                break
             elif is_group or (is_event and not in_group):
                 if pos >= stop_at:
                     st[ST_STOPPED] = 1
@@ -690,7 +962,18 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                 wtf[U(j)] = nan
             state = 1
             continue
+        if not (closing and is_event) and _event_boundary(buf, t0, n):
+            # <event>, <eventgroup>, </eventgroup> or the root tag inside an event
+            status = ERR_EVENT_OPEN
+            st[ST_ERRPOS] = t0
+            st[ST_A] = ns
+            st[ST_B] = ne
+            break
         if closing:
+            if is_event and state == 5:
+                status = ERR_RWGT_OPEN
+                st[ST_ERRPOS] = t0
+                break
             if is_event:
                 # </event>
                 npart += nup
@@ -703,7 +986,7 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     c_slow = nslow
                     c_pos = pos
                 state = 0
-            elif state == 5 and nlen == 4 and buf[U(ns)] == 114:  # </rwgt>
+            elif state == 5 and nlen == 4 and key == _K_RWGT:  # </rwgt>
                 state = 4
             continue
         if selfclose:
@@ -728,17 +1011,26 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
             state = 6
             continue
         # any other element: skip to the end of its closing tag '</name'
-        pos = _skip_element(buf, pos, n, ns, nlen)
-        if pos < 0:
+        e = _skip_element(buf, pos, n, ns, nlen)
+        if e == -2:
+            status = ERR_UNCLOSED
+            st[ST_ERRPOS] = t0
+            st[ST_A] = ns
+            st[ST_B] = ne
+            break
+        if e < 0:
             status = ST_INCOMPLETE
             break
+        pos = e
 
     st[ST_STATUS] = status
     if status >= 10:
-        st[ST_EV] = ev
-        st[ST_NP] = npart
-        st[ST_NSLOW] = nslow
-        st[ST_POS] = pos
+        # the counts of the last commit point; ST_POS: where the damaged part starts
+        st[ST_EV] = c_ev
+        st[ST_NP] = c_np
+        st[ST_NSLOW] = c_slow
+        st[ST_ENSLOW] = nslow
+        st[ST_POS] = c_pos
     else:
         # everything after the last commit point is dropped (and re-read on resume)
         st[ST_EV] = c_ev
@@ -751,7 +1043,10 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
 # ------------------------------------------------------------------ compilation
 
 _COMPILED: Callable[..., Any] | None = None
-_HELPERS = ("_tag_scan", "_find_weight", "_skip_element")
+_HELPERS = (
+    "_event_boundary", "_line_runs_out", "_tag_scan", "_find_weight", "_skip_element",
+    "_end_tag", "_number_ok",
+)
 _TRIED = False
 
 
@@ -804,11 +1099,13 @@ def compiled_kernel() -> Callable[..., Any] | None:
 
 # ------------------------------------------------------------------ slow tokens
 
+# Unambiguous patterns (each character can match one way only): linear time on any token,
+# however long (an ambiguous "\d+\.?\d*" backtracks quadratically on a long bad token).
 _FLOAT_RE = re.compile(
-    r"^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eEdD][+-]?\d+|[+-]\d+)?$|^[+-]?(?:nan|inf|infinity)$",
+    r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eEdD][+-]?\d+|[+-]\d+)?$|^[+-]?(?:nan|inf|infinity)$",
     re.I,
 )
-_FORTRAN_NOLETTER = re.compile(r"^([+-]?(?:\d+\.?\d*|\.\d+))([+-]\d+)$")
+_FORTRAN_NOLETTER = re.compile(r"^([+-]?(?:\d+(?:\.\d*)?|\.\d+))([+-]\d+)$")
 
 
 def parse_slow_token(token: bytes) -> float | None:
@@ -859,7 +1156,7 @@ def fix_slow_values(
 # ------------------------------------------------------------------ error analysis
 
 _PLAIN_INT = re.compile(rb"^[+-]?\d{1,18}$")
-_LINE_TOKEN = re.compile(rb"[^ \t\r\n<#]+")
+_LINE_TOKEN = re.compile(rb"[^ \t\r\n<]+")
 
 
 def diagnose_line(buf: np.ndarray, pos: int, expected: int) -> tuple[int, int, int, int]:
@@ -869,12 +1166,19 @@ def diagnose_line(buf: np.ndarray, pos: int, expected: int) -> tuple[int, int, i
     in the kernel's error protocol: a wrong field count first, then a non-integer (or
     out-of-range) integer field, then a negative NUP, then a token that is no number.
     """
-    end = pos
     n = buf.shape[0]
-    while end < n and buf[end] != 10 and buf[end] != 60 and buf[end] != 35:
-        end += 1
-    data = bytes(buf[pos:end])
-    spans = [(pos + m.start(), pos + m.end()) for m in _LINE_TOKEN.finditer(data)]
+    data = bytes(buf[pos : min(n, pos + (1 << 20))])
+    cut = len(data)
+    for stop in (b"\n", b"<"):
+        i = data.find(stop)
+        if 0 <= i < cut:
+            cut = i
+    data = data[:cut]
+    spans = []
+    for m in _LINE_TOKEN.finditer(data):
+        if data[m.start()] == 35:  # a token starting with '#' ends the line (as in the scan)
+            break
+        spans.append((pos + m.start(), pos + m.end()))
     toks = [bytes(buf[s:e]) for s, e in spans]
     if len(toks) != expected:
         return ERR_FIELD_COUNT, (spans[0][0] if spans else pos), len(toks), expected
