@@ -71,7 +71,7 @@ def test_character_reference_to_a_non_character(tmp_path, ref):
     # XML 1.0 sec. 2.2: surrogates, NUL, U+FFFE/FFFF and code points beyond U+10FFFF are no
     # characters; a reference to one is an error of the file
     path = write(tmp_path, minimal_file(EV, head=weight_head("w" + ref)))
-    with pytest.raises(evtkin.LHEError, match=rf"{path}: the character reference .* is not a valid"):
+    with pytest.raises(evtkin.LHEError, match=rf"{path}: the character reference .* is not"):
         evtkin.lhe_info(path)
     with pytest.raises(evtkin.LHEError):
         list(evtkin.read_lhe(path))
