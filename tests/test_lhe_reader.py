@@ -98,6 +98,7 @@ def test_types_match_contract(tmp_path):
     for f in ("weight", "scale", "alpha_qed", "alpha_qcd"):
         assert f"{f}: float64" in t
     assert "weights: 0 * float64" in t  # regular, zero columns when the file has none
+    assert "named_weights: {}" in t  # a record without fields
     assert "particles: var * Particle[pdgid: int32, status: int32, mother1: int32" in t
     assert ak.fields(ev.particles) == list(PARTICLE_FIELDS)
 
@@ -207,6 +208,10 @@ def test_rwgt_columns_follow_declaration_order(tmp_path):
     assert w1[1] == -7.0
     assert np.isnan(w1[2])
     assert str(ev.weights.type) == "2 * 3 * float64"
+    # the same columns by weight id (LHEF 3.0, arXiv:1405.1067: <wgt id='...'>)
+    assert ak.fields(ev.named_weights) == ["a1", "a2", "b1"]
+    assert ev.named_weights["b1"].tolist()[0] == 3.0
+    assert ev.named_weights.a2.tolist() == [2.0, -7.0]
 
 
 def test_v2_weights_list_with_weightinfo(tmp_path):
@@ -220,6 +225,15 @@ def test_v2_weights_list_with_weightinfo(tmp_path):
     assert evtkin.lhe_info(path).weight_names == ("central", "up", "down")
     ev = read_all(path)
     assert ev.weights.tolist() == [[1.0, 2.0, 3.0]]
+    assert ev.named_weights.tolist() == [{"central": 1.0, "up": 2.0, "down": 3.0}]
+
+
+def test_unnamed_v2_weights_are_named_by_position(tmp_path):
+    # LHEF 2.0 (arXiv:1405.1067, from memory): a <weights> block without <weightinfo>
+    body = ONE_EVENT.replace("</event>", "<weights> 7.0 8.0 </weights>\n</event>")
+    ev = read_all(write(tmp_path, minimal_file(body, version="2.0")))
+    assert ev.weights.tolist() == [[7.0, 8.0]]
+    assert ev.named_weights.tolist() == [{"0": 7.0, "1": 8.0}]
 
 
 def test_v3_weights_list_with_initrwgt(tmp_path):

@@ -32,8 +32,8 @@ def _uproot_concat(files: list[Path], branches: list[str]) -> ak.Array:
 
 def test_chunk_has_lhe_like_layout(two_files: list[Path]) -> None:
     chunk = next(iter(read_ntuple(two_files[0], DETECTOR_MAPPING, step_size=1000)))
-    assert ak.fields(chunk) == ["weight", "weights", "process_id", "event_number", "jets",
-                                "electrons", "met", "n_vertices"]
+    assert ak.fields(chunk) == ["weight", "weights", "named_weights", "process_id",
+                                "event_number", "jets", "electrons", "met", "n_vertices"]
     assert str(ak.type(chunk.weights)) == "1000 * 3 * float64"
     assert chunk.weight.type.content.primitive == "float64"
     assert chunk.process_id.type.content.primitive == "int32"
@@ -119,7 +119,8 @@ def test_fields_limit_the_branches_and_the_bytes(two_files: list[Path]) -> None:
     part = read_ntuple(two_files[0], DETECTOR_MAPPING, fields=["jets.pt", "met"])
     chunk = next(part)
     part.close()
-    assert ak.fields(chunk) == ["weight", "weights", "process_id", "jets", "met"]
+    assert ak.fields(chunk) == ["weight", "weights", "named_weights", "process_id", "jets",
+                                "met"]
     assert ak.fields(chunk.jets) == ["pt", "eta", "phi", "mass"]
     assert set(part.branches) == {"weight", "varw", "Jet_pt", "Jet_eta", "Jet_phi", "Jet_mass",
                                   "MET_pt", "MET_phi"}
@@ -262,6 +263,9 @@ def test_variation_weights_from_a_list_of_branches(tmp_path: Path) -> None:
     np.testing.assert_array_equal(ak.to_numpy(chunk.weights),
                                   np.column_stack([cols["up"], cols["dn"]]))
     assert r.variation_names == ("scale_up", "scale_down")
+    # the same weights by name, fields in the column order
+    assert ak.fields(chunk.named_weights) == ["scale_up", "scale_down"]
+    np.testing.assert_array_equal(ak.to_numpy(chunk.named_weights["scale_down"]), cols["dn"])
     info = describe_ntuple(path, mapping)
     assert info.entries == 50
     assert info.variation_names == ("scale_up", "scale_down")
@@ -273,6 +277,8 @@ def test_no_weight_branch_means_unit_weights_and_no_variations(tmp_path: Path) -
     chunk = next(r)
     assert ak.to_list(chunk.weight) == [1.0] * 7
     assert str(ak.type(chunk.weights)) == "7 * 0 * float64"
+    assert ak.fields(chunk.named_weights) == []
+    assert len(chunk.named_weights) == 7
     assert ak.to_list(chunk.process_id) == [4] * 7
     assert r.variation_names == ()
 
@@ -282,9 +288,11 @@ def test_constant_length_jagged_variation_branch(tmp_path: Path) -> None:
     path = write_tree(tmp_path / "j.root", {"vw": "var * float64", "x": np.float64},
                       [{"vw": ak.Array(w.tolist()), "x": np.zeros(4)}])
     r = read_ntuple(path, {"variation_weights": "vw", "scalars": {"x": "x"}}, step_size=3)
-    got = np.concatenate([ak.to_numpy(c.weights) for c in r])
+    chunks = list(r)
+    got = np.concatenate([ak.to_numpy(c.weights) for c in chunks])
     np.testing.assert_array_equal(got, w)
     assert r.variation_names == ("vw_0", "vw_1", "vw_2")
+    assert all(ak.fields(c.named_weights) == ["vw_0", "vw_1", "vw_2"] for c in chunks)
     assert describe_ntuple(path, {"variation_weights": "vw", "scalars": {"x": "x"}}
                            ).variation_names == ("vw_0", "vw_1", "vw_2")
 

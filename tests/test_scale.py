@@ -342,7 +342,8 @@ def _toml(cfg) -> str:
 
 
 def test_cli_executor_choice():
-    from evtkin.cli.run import SMALL_INPUT_BYTES, make_executor
+    from evtkin.cli.run import make_executor
+    from evtkin.run.executors import SMALL_INPUT_BYTES
 
     assert isinstance(make_executor(input_bytes=1000), SerialExecutor)  # small: one process
     big = make_executor(input_bytes=2 * SMALL_INPUT_BYTES)

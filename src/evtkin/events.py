@@ -42,7 +42,7 @@ import awkward as ak
 import vector
 from vector.backends.awkward import MomentumArray4D, MomentumRecord4D
 
-__all__ = ["PARTICLE_FIELDS", "ParticleArray", "ParticleRecord", "register"]
+__all__ = ["PARTICLE_FIELDS", "ParticleArray", "ParticleRecord", "named_weights", "register"]
 
 #: the fields of an LHE particle record, in LHEF particle-line order
 PARTICLE_FIELDS: tuple[str, ...] = (
@@ -107,6 +107,19 @@ class ParticleRecord(MomentumRecord4D):  # type: ignore[misc]
         return MomentumRecord4D._wrap_result(
             _coordinates_only(self), cls, result, returns, num_vecargs
         )
+
+
+def named_weights(wts: Any, names: tuple[str, ...]) -> Any:
+    """The ``named_weights`` column of a chunk (awkward layout): one float64 field per
+    variation weight, named by its id, in the column order of the ``n x k`` ``weights``
+    column and over the same memory (column views, no copy); a record without fields when
+    there are no variation weights. ``chunk.named_weights["id"]`` is one weight,
+    ``ak.fields(chunk.named_weights)`` the ids."""
+    if len(names) != wts.shape[1]:
+        raise ValueError(f"{wts.shape[1]} variation weights but {len(names)} names")
+    contents = ak.contents
+    return contents.RecordArray([contents.NumpyArray(wts[:, j]) for j in range(len(names))],
+                                [str(n) for n in names], length=wts.shape[0])
 
 
 _registered = False

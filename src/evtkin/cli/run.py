@@ -153,22 +153,9 @@ def _terminate_like_interrupt() -> Callable[[], None]:
     return restore
 
 
-#: without --jobs, inputs smaller than this run in one process (starting workers costs more)
-SMALL_INPUT_BYTES = 32_000_000
-
-
 def make_executor(*, jobs: int | None = None, dask: str | None = None,
                   input_bytes: int | None = None) -> Any:
-    """The executor for ``--jobs``/``--dask``: this process on one core for ``--jobs 1``;
-    without ``--jobs``, this process with the reader's parse threads for inputs under
-    :data:`SMALL_INPUT_BYTES`; a local process pool otherwise (default: every core); a Dask
-    cluster with ``--dask``."""
-    from evtkin.run.executors import DaskExecutor, ProcessExecutor, SerialExecutor
+    """The executor for ``--jobs``/``--dask`` (:func:`evtkin.run.executors.executor_for`)."""
+    from evtkin.run.executors import executor_for
 
-    if dask:
-        return DaskExecutor(dask, n_workers=jobs)
-    if jobs == 1:
-        return SerialExecutor(read_threads=0)  # one core, as asked
-    if jobs is None and input_bytes is not None and input_bytes < SMALL_INPUT_BYTES:
-        return SerialExecutor()  # the reader's own threads use the other cores
-    return ProcessExecutor(jobs)
+    return executor_for(jobs=jobs, dask=dask, input_bytes=input_bytes)

@@ -13,7 +13,9 @@ is set; both fill the same columns. Each chunk is an awkward Array with one reco
 event (see DEVELOPERS.md "LHE chunk"): ``process_id`` (IDPRUP), ``weight`` (XWGTUP),
 ``scale`` (SCALUP), ``alpha_qed`` (AQEDUP), ``alpha_qcd`` (AQCDUP), ``weights``
 (regular ``n x k``; columns in the order of ``lhe_info(path).weight_names``; NaN where
-an event lacks a declared weight), ``particles`` (jagged ``Particle`` records, see
+an event lacks a declared weight), ``named_weights`` (the same weights as a record with one
+field per weight id, ``chunk.named_weights["id"]``; files whose ``<weights>`` blocks declare
+no ids: ``"0"``, ``"1"``, ...), ``particles`` (jagged ``Particle`` records, see
 :mod:`evtkin.events`; ``mother1``/``mother2`` 0-based, -1 = none) and, for files with
 ``<eventgroup>`` blocks (LHEF 2.0), ``group``: int64 index of the first event of the
 event's group (an event outside any group: its own index).
@@ -421,11 +423,13 @@ class _Chunk:
     """The columns of one output chunk, filled by copying from scratch columns."""
 
     def __init__(
-        self, cap: int, p_cap: int, nw: int, groups: bool, pool: _SlabPool | None = None
+        self, cap: int, p_cap: int, names: tuple[str, ...], groups: bool,
+        pool: _SlabPool | None = None,
     ) -> None:
         self.n = 0
         self.np = 0
-        self.nw = nw
+        self.names = names
+        self.nw = nw = len(names)
         self.groups = groups
         layout: list[tuple[tuple[int, ...], type]] = [
             ((cap,), np.int32),
@@ -497,13 +501,14 @@ class _Chunk:
                 fields, list(_events.PARTICLE_FIELDS), parameters={"__record__": "Particle"}
             ),
         )
+        wts = self.wts[:n]
         weights = contents.RegularArray(
-            contents.NumpyArray(self.wts[:n].reshape(-1)), self.nw, zeros_length=n
+            contents.NumpyArray(wts.reshape(-1)), self.nw, zeros_length=n
         )
         columns = [contents.NumpyArray(self.pid[:n])]
         columns += [contents.NumpyArray(self.evf[j, :n]) for j in range(4)]
-        columns += [weights, particles]
-        names = [*_EVENT_FIELDS, "weights", "particles"]
+        columns += [weights, _events.named_weights(wts, self.names), particles]
+        names = [*_EVENT_FIELDS, "weights", "named_weights", "particles"]
         if self.groups:
             columns.append(contents.NumpyArray(self.group[:n]))
             names.append("group")
@@ -953,7 +958,7 @@ def _iterate(
                 per_event = 1.15 * ratio
             while a < s.n_ev:
                 if chunk is None:
-                    chunk = _Chunk(step, int(step * per_event) + 64, nw, groups, slabs)
+                    chunk = _Chunk(step, int(step * per_event) + 64, names, groups, slabs)
                 b = min(a + step - chunk.n, s.n_ev)
                 if groups and b < s.n_ev:
                     # never split a group: extend to the next group start

@@ -5,8 +5,9 @@ declares (only those the caller needs, see ``fields``) and yields awkward Arrays
 the LHE reader's chunks, one record per event:
 
 * ``weight`` (float64; 1.0 when the mapping names no weight branch), ``weights`` (regular
-  ``n × k`` float64 variation weights, k may be 0), ``process_id`` (int32, a branch or the
-  mapping's constant, default 0), ``event_number`` (int64, when mapped and asked for);
+  ``n × k`` float64 variation weights, k may be 0), ``named_weights`` (the same weights as a
+  record of k fields named by :attr:`NtupleReader.variation_names`), ``process_id`` (int32, a
+  branch or the mapping's constant, default 0), ``event_number`` (int64, when mapped and asked for);
 * one jagged collection per mapped collection: records with the ``vector`` behaviour
   ``Momentum4D`` holding float64 coordinates in GeV (``pt, eta, phi, mass`` or
   ``px, py, pz, energy``, as mapped) plus the extra fields with their stored types;
@@ -34,7 +35,7 @@ from typing import Any
 import awkward as ak
 import numpy as np
 
-import evtkin.events  # noqa: F401  (registers vector's awkward behaviours)
+import evtkin.events  # registers vector's awkward behaviours; named_weights
 from evtkin.errors import ConfigError, NtupleError
 from evtkin.io.ntuple_mapping import (
     ENERGY_LIKE,
@@ -373,7 +374,10 @@ class _Builder:
         else:
             w = np.full(n, 1.0 if m.weight is None else float(m.weight))
         add("weight", ak.contents.NumpyArray(w))
-        add("weights", self._variations(arrays, n, ot, first))
+        wv = self._variations(arrays, n, ot, first)
+        add("weights", ak.contents.RegularArray(ak.contents.NumpyArray(wv.reshape(-1)),
+                                                wv.shape[1], zeros_length=n))
+        add("named_weights", evtkin.events.named_weights(wv, self.names(wv.shape[1])))
         if isinstance(m.process_id, str):
             pid = np.asarray(ak.to_numpy(arrays[m.process_id]), dtype=np.int32)
         else:
@@ -400,7 +404,7 @@ class _Builder:
         return ak.Array(ak.contents.RecordArray(contents, fields, length=n))
 
     def _variations(self, arrays: Mapping[str, ak.Array], n: int, ot: _OpenTree,
-                    first: int) -> Any:
+                    first: int) -> np.ndarray:
         var = self.m.variation_weights
         if var is None:
             wv = np.zeros((n, 0))
@@ -434,8 +438,19 @@ class _Builder:
                 f"{k} variation weights per event but {self.k_file or 'the mapping'} gave "
                 f"{self.k}; all files of a read must have the same variations"
             )
-        return ak.contents.RegularArray(ak.contents.NumpyArray(wv.reshape(-1)), k,
-                                        zeros_length=n)
+        return wv
+
+    def names(self, k: int) -> tuple[str, ...]:
+        """The names of ``k`` variation weights: the mapping's ``variation_names``, else the
+        branch names, else ``<branch>_<i>`` for the columns of one array branch."""
+        var = self.m.variation_weights
+        if var is None or k == 0:
+            return ()
+        if self.m.variation_names is not None and len(self.m.variation_names) == k:
+            return tuple(self.m.variation_names)
+        if isinstance(var, tuple):
+            return var
+        return tuple(f"{var}_{i}" for i in range(k))
 
     def _collection(self, name: str, extras: set[str] | None, arrays: Mapping[str, ak.Array],
                     n: int, ot: _OpenTree, first: int) -> Any:

@@ -6,7 +6,6 @@ a dozen histograms is drawn faster on several cores. The figures are the same ei
 
 from __future__ import annotations
 
-import multiprocessing as mp
 from collections.abc import Callable, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from typing import Any
@@ -26,13 +25,15 @@ def draw_all(tasks: Sequence[Task], workers: int = 1) -> list[Any]:
 
     ``workers`` > 1 with at least :data:`MIN_FIGURES_FOR_PROCESSES` tasks: in a pool of up to
     ``workers`` processes, forked from the forkserver where there is one (never from this
-    process, whose reader threads may still exist), else spawned.
+    process, whose reader threads may still exist), else spawned; the workers never import
+    the caller's ``__main__`` (a script without a main guard, a notebook).
     """
     if workers <= 1 or len(tasks) < MIN_FIGURES_FOR_PROCESSES:
         return [fn(*args, **kwargs) for fn, args, kwargs in tasks]
-    method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
+    from evtkin._processes import pool_context
+
     with ProcessPoolExecutor(max_workers=min(workers, len(tasks)),
-                             mp_context=mp.get_context(method)) as pool:
+                             mp_context=pool_context()) as pool:
         futures = [pool.submit(_call, t) for t in tasks]
         return [f.result() for f in futures]
 

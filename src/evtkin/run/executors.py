@@ -17,8 +17,9 @@ from any worker as plain data). :func:`execute` makes the units, drives an execu
 stops with a :class:`UnitError` naming the file and range of the first failing unit (or,
 with ``skip_bad=True``, records it and goes on), and merges the partial results **in unit
 order** with :func:`~evtkin.run.partial.merge_all`, so every executor gives bit-identical
-results for the same units. Process-based executors need the usual
-``if __name__ == "__main__":`` guard in scripts that use them.
+results for the same units. Worker processes never import the caller's ``__main__``
+(:func:`evtkin.run.forkserver.pool_context`), so scripts need no ``if __name__ ==
+"__main__":`` guard and notebooks work the same.
 """
 
 from __future__ import annotations
@@ -37,7 +38,13 @@ from dataclasses import dataclass, field
 from typing import Any, Protocol
 
 from evtkin.errors import ConfigError, EvtkinError
-from evtkin.run.forkserver import DASK_PRELOAD, available_cores, start_forkserver
+from evtkin.run.forkserver import (
+    DASK_PRELOAD,
+    available_cores,
+    main_kept_from_children,
+    pool_context,
+    start_forkserver,
+)
 from evtkin.run.forkserver import start_method as forkserver_start_method
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.plan import Plan
@@ -45,6 +52,7 @@ from evtkin.run.progress import RunProgress
 from evtkin.run.units import WorkUnit, make_units, process_unit, sha256_of
 
 __all__ = [
+    "SMALL_INPUT_BYTES",
     "Checksums",
     "DaskExecutor",
     "Execution",
@@ -55,6 +63,7 @@ __all__ = [
     "UnitOutcome",
     "available_cores",
     "execute",
+    "executor_for",
     "get_executor",
     "local_cores",
     "run_unit",
@@ -268,7 +277,7 @@ class ProcessExecutor(_Base):
             return
         from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
-        ctx = mp.get_context(self.start_method)
+        ctx = pool_context(self.start_method)
         self.prestart()  # import evtkin and load the compiled kernels once, in the forkserver
         q = ctx.Queue() if progress is not None else None
         stop = threading.Event()
@@ -489,11 +498,12 @@ def _local_cluster(factory: Any, n_workers: int) -> Any:
     if method == "forkserver":
         from distributed.utils import get_mp_context
 
-        with dask.config.set({"distributed.worker.multiprocessing-method": method, **quiet}):
+        with (dask.config.set({"distributed.worker.multiprocessing-method": method, **quiet}),
+              main_kept_from_children()):
             get_mp_context().set_forkserver_preload(DASK_PRELOAD)  # (if not started yet)
             return factory(n_workers=n_workers, threads_per_worker=1, processes=True,
                            dashboard_address=None, silence_logs=logging.ERROR)
-    with dask.config.set(quiet):
+    with dask.config.set(quiet), main_kept_from_children():
         return factory(n_workers=n_workers, threads_per_worker=1, processes=True,
                        dashboard_address=None, silence_logs=logging.ERROR)
 
@@ -509,6 +519,28 @@ def get_executor(name: str = "serial", *, jobs: int | None = None,
     if name == "dask":
         return DaskExecutor(dask or "local", n_workers=jobs)
     raise ValueError(f"unknown executor {name!r}; available: 'serial', 'processes', 'dask'")
+
+
+#: without ``jobs``, inputs smaller than this run in one process (starting workers costs more)
+SMALL_INPUT_BYTES = 32_000_000
+
+
+def executor_for(*, jobs: int | None = None, dask: str | None = None,
+                 input_bytes: int | None = None) -> Executor:
+    """The executor that ``--jobs``/``--dask`` (and ``evtkin.run(jobs=, dask=)``) ask for:
+    this process on one core for ``jobs=1``; without ``jobs``, this process with the reader's
+    parse threads for inputs under :data:`SMALL_INPUT_BYTES`; a local process pool otherwise
+    (default: every core); a Dask cluster with ``dask`` (``jobs`` = its number of workers with
+    ``dask="local"``)."""
+    if jobs is not None and int(jobs) < 1:
+        raise ValueError(f"jobs must be >= 1, got {jobs}")
+    if dask:
+        return DaskExecutor(dask, n_workers=jobs)
+    if jobs == 1:
+        return SerialExecutor(read_threads=0)  # one core, as asked
+    if jobs is None and input_bytes is not None and input_bytes < SMALL_INPUT_BYTES:
+        return SerialExecutor()  # the reader's own threads use the other cores
+    return ProcessExecutor(jobs)
 
 
 # --------------------------------------------------------------------------- driving a run

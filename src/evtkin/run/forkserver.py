@@ -1,9 +1,12 @@
 """Early start of the forkserver that local worker processes are forked from.
 
-This module imports nothing but :mod:`multiprocessing`, so that the command line can start
-the forkserver first thing, before it imports numpy, awkward, numba and the rest of evtkin
-itself (~1.5 s). The forkserver then imports evtkin and loads the compiled kernels
-(:data:`PRELOAD`) on the other core meanwhile, and the workers forked from it start warm.
+This module imports nothing but :mod:`multiprocessing`, :mod:`os` and :mod:`evtkin._processes`, so
+that the command line can start the forkserver first thing, before it imports numpy, awkward,
+numba and the rest of evtkin itself (~1.5 s). The forkserver then imports evtkin and loads the
+compiled kernels (:data:`PRELOAD`) on the other core meanwhile, and the workers forked from it
+start warm.
+
+Worker processes never import the parent's ``__main__`` (:mod:`evtkin._processes`).
 """
 
 from __future__ import annotations
@@ -11,7 +14,10 @@ from __future__ import annotations
 import multiprocessing as mp
 import os
 
-__all__ = ["DASK_PRELOAD", "PRELOAD", "available_cores", "start_forkserver", "start_method"]
+from evtkin._processes import main_kept_from_children, pool_context, start_method
+
+__all__ = ["DASK_PRELOAD", "PRELOAD", "available_cores", "main_kept_from_children",
+           "pool_context", "start_forkserver", "start_method"]
 
 #: modules the forkserver imports before it forks workers: evtkin, and the warm-up that loads
 #: the compiled kernels, so that every worker starts with them loaded
@@ -27,15 +33,6 @@ def available_cores() -> int:
         return max(1, len(os.sched_getaffinity(0)))  # type: ignore[attr-defined,unused-ignore]
     except AttributeError:  # pragma: no cover - not Linux
         return max(1, os.cpu_count() or 1)
-
-
-def start_method() -> str:
-    """``forkserver`` where it exists, else ``spawn``.
-
-    fork is unsafe with the reader's threads; forkserver forks from a clean process that
-    imported evtkin once (cheap workers), spawn is the portable fallback.
-    """
-    return "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
 
 
 def start_forkserver(preload: list[str] | None = None) -> None:

@@ -27,7 +27,7 @@ from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import NormalisedHist, normalise
 from evtkin.hists.xsec import FileTotals, XsecResult
-from evtkin.run.executors import Executor, execute, local_cores
+from evtkin.run.executors import Executor, execute, executor_for, local_cores
 from evtkin.run.inputs import input_source
 from evtkin.run.partial import PartialResult
 from evtkin.run.plan import Plan, build_plan
@@ -194,6 +194,8 @@ def run(
     config: str | Path | Mapping[str, Any] | AnalysisConfig,
     *,
     out: str | Path | None = None,
+    jobs: int | None = None,
+    dask: str | None = None,
     max_events: int | None = None,
     step_size: int | None = None,
     progress: bool | None = False,
@@ -207,10 +209,16 @@ def run(
     ``config``: a TOML path, a mapping (relative sample paths against the working
     directory) or an :class:`~evtkin.config.AnalysisConfig`. ``out``: write the results
     folder there (default: the config's ``[output] directory``, else nothing is written).
+    ``jobs`` and ``dask`` mean what ``--jobs`` and ``--dask`` mean on the command line:
+    ``jobs=1`` runs in this process on one core, ``jobs=N`` in N local worker processes,
+    ``dask="local"`` or a scheduler address on a Dask cluster (``jobs``: its number of
+    workers with ``"local"``); without either, small inputs run here with the reader's
+    threads and larger ones on every core. It works the same from a script (no
+    ``if __name__ == "__main__":`` guard needed), a notebook and the command line.
     ``max_events``: read at most this many events from each input file. ``step_size``:
     events per chunk (results do not depend on it). ``progress``: show a progress bar
-    (``None``: only on a terminal). ``executor``: where the work units run (default: serially
-    here; see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is skipped and listed
+    (``None``: only on a terminal). ``executor``: where the work units run, instead of
+    ``jobs``/``dask`` (see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is skipped and listed
     in the provenance and results (default: the run stops with an error naming its file and
     range). ``unit_bytes``: target size of byte-range units of plain LHE files (default:
     automatic from the number of workers). ``part``: ``(K, N)`` reads only the K-th of N
@@ -219,6 +227,10 @@ def run(
     """
     started = _dt.datetime.now(_dt.timezone.utc)
     t0 = time.perf_counter()
+    if executor is not None and (jobs is not None or dask is not None):
+        raise ValueError("give either executor or jobs/dask, not both")
+    if jobs is not None and (isinstance(jobs, bool) or int(jobs) != jobs or jobs < 1):
+        raise ValueError(f"jobs must be a whole number >= 1, got {jobs!r}")
     cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
     plan = build_plan(cfg, step_size=step_size, max_events=max_events)
     planned = make_units(plan)  # missing inputs fail before anything else
@@ -234,6 +246,10 @@ def run(
     from evtkin.hists.recipes import check_config_against_files
 
     check_config_against_files(cfg)  # unknown weight groups/ids fail before reading events
+    if executor is None:  # as the command line chooses (workers start in execute())
+        input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
+                          if f.is_file())
+        executor = executor_for(jobs=jobs, dask=dask, input_bytes=input_bytes)
     execution = execute(plan, executor, skip_bad=skip_bad, progress=progress,
                         unit_bytes=unit_bytes, only_files=only_files)
     partial = execution.partial
