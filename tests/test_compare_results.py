@@ -335,7 +335,7 @@ def test_compare_results_and_command_on_folders(tmp_path: Path) -> None:
     try:
         cs = compare_results([a, b], out=tmp_path / "cmp", shape_only=True, pulls=True)
     except Exception as exc:  # the reader may require files this hand-made folder lacks
-        pytest.skip(f"hand-made results folder not accepted by load_results: {exc}")
+        pytest.skip(f"hand-made results folder not accepted by read_results: {exc}")
     assert summary_rows(cs)[0]["histogram"] == "m_pair"
     for f in ("summary.txt", "summary.csv", "summary.json", "report.html", "plots/m_pair.png"):
         assert (tmp_path / "cmp" / f).is_file(), f

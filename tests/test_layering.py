@@ -19,6 +19,7 @@ SRC = Path(__file__).resolve().parents[1] / "src"
 LAYERS: dict[str, int] = {
     # 0: leaves that every layer may use
     "evtkin._version": 0, "evtkin.errors": 0, "evtkin.files": 0, "evtkin._jit": 0,
+    "evtkin._processes": 0,
     # 1: the event model (the behaviours the readers attach to particle records)
     "evtkin.events": 1,
     # 2: readers and writers of event files

@@ -18,8 +18,8 @@ from evtkin.output.tables import (
     SampleResult,
     cutflow_text,
     hist_result,
-    load_results,
     read_hist_csv,
+    read_results,
     write_provenance,
     write_results,
 )
@@ -57,7 +57,7 @@ def _results() -> Results:
 def test_json_round_trip(tmp_path: Path) -> None:
     res = _results()
     write_results(tmp_path, res)
-    back = load_results(tmp_path)
+    back = read_results(tmp_path)
     assert back.meta["format"] == "evtkin-results"
     assert back.meta["format_version"] == 1
     assert back.meta["note"] == "toy data — not a physics prediction"
@@ -89,7 +89,7 @@ def test_json_is_strict_and_nan_becomes_null(tmp_path: Path) -> None:
     write_results(tmp_path, res)
     text = (tmp_path / "results.json").read_text(encoding="utf-8")
     json.loads(text, parse_constant=lambda c: pytest.fail(f"non-standard JSON constant {c}"))
-    back = load_results(tmp_path)
+    back = read_results(tmp_path)
     assert math.isnan(back.samples["dy toy"].histograms["mll"].values[0])
 
 
@@ -135,16 +135,16 @@ def test_provenance_and_no_temporary_files_left(tmp_path: Path) -> None:
 
 def test_reader_errors(tmp_path: Path) -> None:
     with pytest.raises(ResultsError, match="no results file"):
-        load_results(tmp_path)
+        read_results(tmp_path)
     (tmp_path / "results.json").write_text('{"format": "other"}', encoding="utf-8")
     with pytest.raises(ResultsError, match="not an evtkin results file"):
-        load_results(tmp_path)
+        read_results(tmp_path)
     (tmp_path / "results.json").write_text('{"format": \n oops', encoding="utf-8")
     with pytest.raises(ResultsError, match=r"results.json:2"):
-        load_results(tmp_path)
+        read_results(tmp_path)
     write_results(tmp_path, _results())
     data = json.loads((tmp_path / "results.json").read_text(encoding="utf-8"))
     data["samples"]["dy toy"]["histograms"]["mll"]["values"] = [1.0, 2.0]
     (tmp_path / "results.json").write_text(json.dumps(data), encoding="utf-8")
     with pytest.raises(ResultsError, match=r"histograms\.mll\.values: expected shape \(5,\)"):
-        load_results(tmp_path)
+        read_results(tmp_path)

@@ -134,9 +134,11 @@ def test_normalisations_integrate_to_sigma_and_sigma_times_lumi(tmp_path):
     }
     res = run(cfg)
     h = res["dy"]["dsig"]
+    total = h.sum(flow=True).value  # σ per bin (pb), flow bins included
+    # the stored density (results.json, plots): Σ dσ/dx·Δx over the range + the flow bins
+    dens = res.samples["dy"].histograms["dsig"].values[0]
     widths = np.diff(h.axes[0].edges)
-    vals = h.values(flow=True)
-    total = np.sum(vals[1:-1] * widths) + vals[0] + vals[-1]  # flow bins hold plain Σw (pb)
+    assert np.sum(dens[1:-1] * widths) + dens[0] + dens[-1] == pytest.approx(total, rel=1e-12)
     # IDWTUP = 3 with unit weights: Σw = Σ XSECUP (LHEF accord); events with < 2 leptons give
     # no entry, so compare with the fraction of events with two leptons in acceptance
     s, *_ = _reference(sample)

@@ -39,7 +39,7 @@ def test_run_writes_self_contained_report(tmp_path: Path) -> None:
     text = " ".join(parser.text)
     # every histogram of the run is shown, with its plot embedded, and nothing is fetched
     results = evtkin.load_results(out)
-    for name in results.samples["dy"].histograms:
+    for name in results["dy"]:
         assert name in text
     assert parser.images
     assert all(src.startswith("data:image/png;base64,") for src in parser.images)

@@ -32,7 +32,11 @@ _LAZY: dict[str, str] = {
     "write_hepmc": "evtkin.io.hepmc_write",
     "run": "evtkin.run.pipeline",
     "compare_results": "evtkin.output.compare_run",
-    "load_results": "evtkin.output.tables",
+    "load_results": "evtkin.output.results",
+    "Results": "evtkin.output.results",
+    "SampleHists": "evtkin.output.results",
+    "HistBand": "evtkin.output.results",
+    "density": "evtkin.hists.histview",
 }
 
 __all__ = [
@@ -40,12 +44,16 @@ __all__ = [
     "EvtkinError",
     "HepMCError",
     "HepMCInfo",
+    "HistBand",
     "LHEError",
     "LHEInfo",
     "NtupleError",
+    "Results",
     "ResultsError",
+    "SampleHists",
     "__version__",
     "compare_results",
+    "density",
     "hepmc_info",
     "lhe_info",
     "load_results",
@@ -57,6 +65,7 @@ __all__ = [
 ]
 
 if TYPE_CHECKING:  # pragma: no cover
+    from evtkin.hists.histview import density
     from evtkin.io.hepmc import read_hepmc
     from evtkin.io.hepmc_header import HepMCInfo, hepmc_info
     from evtkin.io.hepmc_write import write_hepmc
@@ -64,7 +73,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from evtkin.io.lhe_header import LHEInfo, lhe_info
     from evtkin.io.lhe_write import write_lhe
     from evtkin.output.compare_run import compare_results
-    from evtkin.output.tables import load_results
+    from evtkin.output.results import HistBand, Results, SampleHists, load_results
     from evtkin.run.pipeline import run
 
 

@@ -44,11 +44,11 @@ def compare_results(
     its histograms. See :func:`compare_loaded` for the pairing rules. ``workers``: processes
     drawing the plots (see :func:`evtkin.output.drawing.draw_all`).
     """
-    from evtkin.output.tables import load_results
+    from evtkin.output.tables import read_results
 
     if not folders:
         raise ResultsError("compare: give at least one results folder")
-    results = [load_results(f) for f in folders]
+    results = [read_results(f) for f in folders]
     cs = compare_loaded(
         results,
         [str(f) for f in folders],

@@ -438,8 +438,8 @@ def write_run_report(
     folder: str | os.PathLike[str], path: str | os.PathLike[str] | None = None
 ) -> Path:
     """Write the report of a results folder (default ``folder/report.html``); return the path."""
-    from evtkin.output.tables import load_results
+    from evtkin.output.tables import read_results
 
-    results = load_results(folder)
+    results = read_results(folder)
     target = Path(path) if path is not None else Path(folder) / "report.html"
     return _write(target, render_run_report(results, folder))

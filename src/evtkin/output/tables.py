@@ -2,7 +2,7 @@
 
 The folder layout and the JSON schema are documented in docs/results-format.md. The same plain
 dataclasses (:class:`Results`, :class:`SampleResult`, :class:`HistResult`, :class:`AxisInfo` and
-:class:`evtkin.hists.bands.Band`) are written and read back by :func:`load_results`.
+:class:`evtkin.hists.bands.Band`) are written and read back by :func:`read_results`.
 Every file is written to a temporary name in its folder and renamed (no half-written files).
 """
 
@@ -37,6 +37,7 @@ __all__ = [
     "cutflow_text",
     "hist_result",
     "load_results",
+    "read_results",
     "write_cutflow",
     "write_hist_csv",
     "write_json",
@@ -441,7 +442,7 @@ def _load_bands(d: Mapping[str, Any], key: str, where: str) -> dict[str, Band]:
     return bands
 
 
-def load_results(folder: str | os.PathLike[str]) -> Results:
+def read_results(folder: str | os.PathLike[str]) -> Results:
     """Read ``<folder>/results.json`` back into plain objects (arrays as numpy, flow included)."""
     p = Path(folder)
     path = p / RESULTS_JSON if p.is_dir() else p
@@ -468,3 +469,8 @@ def load_results(folder: str | os.PathLike[str]) -> Results:
             histograms=hists, cutflow=list(s.get("cutflow") or []),
         )
     return out
+
+
+#: the same as :func:`read_results` (the plain record); :func:`evtkin.load_results` gives the
+#: ``hist.Hist`` mappings that :func:`evtkin.run` returns
+load_results = read_results

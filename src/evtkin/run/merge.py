@@ -131,7 +131,7 @@ def merge_results(out: str | os.PathLike[str], folders: Sequence[str | os.PathLi
     provenance["execution"] = {"kind": "merge", "folders": len(paths)}
     provenance["skipped"] = [s for pv in provs for s in (pv.get("skipped") or [])]
     provenance["merge_warnings"] = warnings
-    result = RunResult(samples, provenance, None, dict(partial.seconds), partial)
+    result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
     if write:
         from evtkin.run.outputs import write_outputs
 

@@ -10,7 +10,7 @@ the plots. :func:`summary_text` is the per-sample cross-section summary printed 
 from __future__ import annotations
 
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from evtkin.files import atomic_write_text
 from evtkin.output import tables
@@ -28,29 +28,10 @@ _INCOMPLETE_TEXT = ("evtkin is writing this folder, or a run writing it was inte
 
 
 def to_results(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> tables.Results:
-    """The plain results record of a run (nominal values and uncertainty bands)."""
-    samples = {}
-    for name, s in result.samples.items():
-        samples[name] = tables.SampleResult(
-            name=name,
-            label=s.label,
-            luminosity_fb=s.luminosity_fb,
-            xsec=s.xsec.to_dict() if s.xsec is not None else {},
-            variations=list(s.variations),
-            histograms={h: tables.hist_result(nh, getattr(s, "bands", {}).get(h),
-                                              shape_bands=getattr(s, "shape_bands", {}).get(h))
-                        for h, nh in s.histograms.items()},
-            cutflow=list(s.cutflow) if with_cutflow else [],
-        )
-    meta: dict[str, Any] = {"analysis": plan.config.name}
-    if plan.config.note:
-        meta["note"] = plan.config.note
-    elif any(s.toy for s in plan.config.samples.values()):
-        meta["note"] = "toy data — not a physics prediction"
-    skipped = (result.provenance or {}).get("skipped")
-    if skipped:  # --skip-bad: the units left out, so nothing is silently missing
-        meta["skipped"] = list(skipped)
-    return tables.Results(samples=samples, meta=meta)
+    """The plain results record of a run (:func:`evtkin.run.result.results_record`)."""
+    from evtkin.run.result import results_record
+
+    return results_record(plan, result, with_cutflow=with_cutflow)
 
 
 def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers: int = 1) -> Path:

@@ -218,9 +218,9 @@ def run(
     ``max_events``: read at most this many events from each input file. ``step_size``:
     events per chunk (results do not depend on it). ``progress``: show a progress bar
     (``None``: only on a terminal). ``executor``: where the work units run, instead of
-    ``jobs``/``dask`` (see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is skipped and listed
-    in the provenance and results (default: the run stops with an error naming its file and
-    range). ``unit_bytes``: target size of byte-range units of plain LHE files (default:
+    ``jobs``/``dask`` (see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is
+    skipped and listed in the provenance and results (default: the run stops with an error
+    naming its file and range). ``unit_bytes``: target size of byte-range units of plain LHE files (default:
     automatic from the number of workers). ``part``: ``(K, N)`` reads only the K-th of N
     parts of the input files (:func:`evtkin.run.parts.split_files`), for jobs whose results
     folders ``evtkin merge`` adds up.
@@ -260,7 +260,7 @@ def run(
     provenance["skipped"] = list(execution.skipped)
     if part is not None:
         provenance["part"] = {"index": part[0], "of": part[1]}
-    result = RunResult(samples, provenance, None, dict(partial.seconds), partial)
+    result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
     target = Path(out) if out is not None else cfg.output.directory
     if target is not None:
         from evtkin.run.outputs import write_outputs

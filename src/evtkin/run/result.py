@@ -8,14 +8,15 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import NormalisedHist
 from evtkin.hists.xsec import XsecResult
+from evtkin.output import tables
+from evtkin.output.results import Results
 from evtkin.run.partial import PartialResult
+from evtkin.run.plan import Plan
 
-__all__ = ["RunResult", "SampleResult"]
+__all__ = ["RunResult", "SampleResult", "results_record"]
 
 
 @dataclass
@@ -45,10 +46,15 @@ class SampleResult:
     responses: dict[str, Any] = field(default_factory=dict)
 
 
-@dataclass
-class RunResult:
-    """What :func:`run` returns: ``result[sample][histogram]`` is a ``hist.Hist`` (Weight storage,
-    normalised as the config asks)."""
+@dataclass(eq=False, repr=False)
+class RunResult(Results):
+    """What :func:`evtkin.run` returns: a :class:`~evtkin.output.results.Results` mapping,
+    ``result[sample][histogram]`` a ``hist.Hist`` (Weight storage, per-bin contents; see
+    :mod:`evtkin.hists.histview`), equal to what :func:`evtkin.load_results` reads back from
+    the results folder. Beside the mapping: ``samples`` (the run's full per-sample record:
+    normalised contents of every variation, accumulators, cross sections), ``provenance``,
+    ``out`` (the folder written, if any), ``seconds`` (per stage) and ``partial`` (the merged
+    sums before normalisation)."""
 
     samples: dict[str, SampleResult]
     provenance: dict[str, Any]
@@ -56,22 +62,64 @@ class RunResult:
     seconds: dict[str, float] = field(default_factory=dict)
     #: the merged, not yet normalised sums (written as ``partial.npz`` for ``evtkin merge``)
     partial: PartialResult | None = None
+    #: the plan the run followed (names the axes and the output formats of the mapping view)
+    plan: Plan | None = field(default=None, repr=False)
+    _samples_view: dict[str, Any] | None = field(default=None, init=False, repr=False)
+    _meta: dict[str, Any] | None = field(default=None, init=False, repr=False)
 
-    def __getitem__(self, sample: str) -> dict[str, Any]:
-        return self.hists(sample)
+    def _view(self) -> dict[str, Any]:
+        if self._samples_view is None:
+            from evtkin.output.results import from_record
 
-    def hists(self, sample: str) -> dict[str, Any]:
-        """``{histogram name: hist.Hist}`` of one sample (nominal weight)."""
-        s = self.samples[sample]
-        return {name: _to_hist(nh) for name, nh in s.histograms.items()}
+            if self.plan is None:
+                raise ValueError("RunResult made without its plan: no histogram view")
+            formats = set(self.plan.config.output.formats)
+            record = results_record(self.plan, self, with_cutflow="cutflow" in formats)
+            text = (self.provenance.get("config") or {}).get("text")
+            self._samples_view = from_record(record, config_text=text)
+            self._meta = dict(record.meta)
+        return self._samples_view
 
     @property
-    def histograms(self) -> dict[str, dict[str, Any]]:
-        return {name: self.hists(name) for name in self.samples}
+    def meta(self) -> dict[str, Any]:  # type: ignore[override]
+        self._view()
+        return dict(self._meta or {})
+
+    @meta.setter
+    def meta(self, value: Any) -> None:  # Results.__init__ is not called (dataclass)
+        self._meta = dict(value)
+
+    def hists(self, sample: str) -> Any:
+        """The histograms of one sample (``result[sample]``)."""
+        return self[sample]
+
+    @property
+    def histograms(self) -> dict[str, Any]:
+        """``{sample: {histogram: hist.Hist}}``."""
+        return dict(self.items())
 
 
-def _to_hist(nh: NormalisedHist, variation: int = 0) -> Any:
-    acc = HistAccumulator(nh.spec, nh.variations, nh.entries,
-                          np.ascontiguousarray(np.moveaxis(nh.values, 0, -1)),
-                          np.ascontiguousarray(np.moveaxis(nh.variances, 0, -1)))
-    return acc.to_hist(variation)
+def results_record(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> tables.Results:
+    """The plain results record of a run (nominal values and uncertainty bands)."""
+    samples = {}
+    for name, s in result.samples.items():
+        samples[name] = tables.SampleResult(
+            name=name,
+            label=s.label,
+            luminosity_fb=s.luminosity_fb,
+            xsec=s.xsec.to_dict() if s.xsec is not None else {},
+            variations=list(s.variations),
+            histograms={h: tables.hist_result(nh, getattr(s, "bands", {}).get(h),
+                                              shape_bands=getattr(s, "shape_bands", {}).get(h))
+                        for h, nh in s.histograms.items()},
+            cutflow=list(s.cutflow) if with_cutflow else [],
+        )
+    meta: dict[str, Any] = {"analysis": plan.config.name}
+    if plan.config.note:
+        meta["note"] = plan.config.note
+    elif any(s.toy for s in plan.config.samples.values()):
+        meta["note"] = "toy data — not a physics prediction"
+    skipped = (result.provenance or {}).get("skipped")
+    if skipped:  # --skip-bad: the units left out, so nothing is silently missing
+        meta["skipped"] = list(skipped)
+    return tables.Results(samples=samples, meta=meta)
