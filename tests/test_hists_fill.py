@@ -230,6 +230,28 @@ def test_scaled_equals_filling_scaled_weights() -> None:
     np.testing.assert_allclose(s.sumw2, b.sumw2, rtol=1e-12, atol=1e-15)
 
 
+def test_add_scaled_merges_parts_with_their_factors() -> None:
+    # Σ_parts f_p·Σw_p and Σ f_p²·Σw²_p: filling the parts' weights scaled by f_p (definition)
+    x1, x2 = RNG.normal(0, 1, 300), RNG.normal(0, 1, 200)
+    w1, w2 = RNG.normal(1, 1, 300), RNG.normal(1, 1, 200)
+    v1, v2 = RNG.normal(1, 1, (300, 2)), RNG.normal(1, 1, (200, 2))
+    spec = HistSpec("x", (AxisSpec.regular(5, -2, 2, name="x"),))
+    p1, p2 = HistAccumulator(spec, ("a", "b")), HistAccumulator(spec, ("a", "b"))
+    p1.fill(x1, weight=w1, variations=v1)
+    p2.fill(x2, weight=w2, variations=v2)
+    ref = HistAccumulator(spec, ("a", "b"))
+    ref.fill(np.concatenate([x1, x2]), weight=np.concatenate([w1 * 0.5, w2 * 3.0]),
+             variations=np.concatenate([v1 * 0.5, v2 * 3.0]))
+    acc = HistAccumulator(spec, ("a", "b"))
+    assert acc.add_scaled(p1, 0.5).add_scaled(p2, 3.0) is acc
+    np.testing.assert_allclose(acc.sumw, ref.sumw, rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(acc.sumw2, ref.sumw2, rtol=1e-12, atol=1e-15)
+    assert acc.entries == 500
+    other = HistAccumulator(HistSpec("y", (AxisSpec.regular(4, -2, 2, name="x"),)), ("a", "b"))
+    with pytest.raises(ValueError, match="different specs"):
+        acc.add_scaled(other, 1.0)
+
+
 def test_many_variations_unordered_rows_and_mixed_items_vs_numpy() -> None:
     # 30 variations (row width padded inside the kernel), rows in random order, and items with
     # and without a row map filled together; reference: numpy.histogram per weight column

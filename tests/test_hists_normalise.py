@@ -113,3 +113,23 @@ def test_raw_keeps_contents_and_unknown_mode_is_an_error() -> None:
     assert np.array_equal(r.variances, acc.sumw2)
     with pytest.raises(ValueError, match="unknown normalisation"):
         normalise(acc, "per_bin")
+
+
+def test_one_unit_area_for_histograms_and_comparisons() -> None:
+    # compare.unit_area is the same function; a zero total: zeros (a histogram without
+    # selected events) or an error where a shape cannot be formed
+    from evtkin import compare
+    from evtkin.hists.normalise import unit_area as ua
+
+    assert compare.unit_area is ua
+    p, v = ua(np.zeros(3), np.zeros(3))
+    assert p.tolist() == [0.0, 0.0, 0.0]
+    assert v.tolist() == [0.0, 0.0, 0.0]
+    with pytest.raises(ValueError, match="cannot normalise"):
+        ua(np.zeros(3), np.zeros(3), empty="error")
+    with pytest.raises(ValueError, match="cannot normalise"):
+        ua(np.array([1.0, np.inf]), np.ones(2), empty="error")
+    # REFERENCES §2.11: unit weights give the binomial p(1-p)/N
+    n = np.array([10.0, 30.0, 60.0])
+    p, v = ua(n, n)
+    np.testing.assert_allclose(v, p * (1 - p) / 100, rtol=1e-12)

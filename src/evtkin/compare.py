@@ -52,6 +52,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy import stats
 
+from evtkin.hists.normalise import unit_area  # the one implementation (re-exported)
+
 __all__ = [
     "Chi2Result",
     "HistComparison",
@@ -157,22 +159,6 @@ def pull(
     with np.errstate(divide="ignore", invalid="ignore"):
         out = (a_ - b_) / np.sqrt(var)
     return np.where(var > 0, out, np.nan)
-
-
-def unit_area(values: ArrayLike, variances: ArrayLike) -> tuple[FArray, FArray]:
-    """Normalise to unit area over all given bins, with the delta-method variance.
-
-    Var(p_k) = [(1 - 2 p_k) s_k² + p_k² S] / W², S = Σ s_j² (REFERENCES §2.11; reduces to the
-    binomial p(1-p)/N for unit weights).
-    """
-    w, s2 = _arr(values, "values"), _arr(variances, "variances")
-    _same_len(values=w, variances=s2)
-    total = float(w.sum())
-    if total == 0.0 or not np.isfinite(total):
-        raise ValueError(f"unit_area: total of the bin values is {total}; cannot normalise")
-    p = w / total
-    var = ((1.0 - 2.0 * p) * s2 + p * p * s2.sum()) / (total * total)
-    return p, np.maximum(var, 0.0)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -730,8 +716,8 @@ def compare_histograms(
     band_dn, band_up = a.band_down, a.band_up
     if shape_only:
         total_a = float(va.sum())
-        va, sa = unit_area(va, sa)
-        vb, sb = unit_area(vb, sb)
+        va, sa = unit_area(va, sa, empty="error")
+        vb, sb = unit_area(vb, sb, empty="error")
         if a.shape_band_down is not None and a.shape_band_up is not None:
             band_dn, band_up = a.shape_band_down, a.shape_band_up
             notes.append("band of the shape: each variation normalised to its own total")

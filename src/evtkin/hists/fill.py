@@ -538,6 +538,20 @@ class HistAccumulator:
             return self.copy()
         return self.__add__(other)
 
+    def add_scaled(self, other: HistAccumulator, factor: float) -> HistAccumulator:
+        """Add ``other`` × ``factor`` in place (Σw × factor, Σw² × factor², entries added): the
+        merge of per-file parts with their cross-section factors known after the pass.
+        ``other`` must have the same spec and number of variations; returns ``self``."""
+        if not isinstance(other, HistAccumulator):
+            raise TypeError(f"cannot add {type(other).__name__} to HistAccumulator")
+        if other.spec != self.spec or other._w.shape != self._w.shape:
+            raise ValueError(f"cannot merge histograms with different specs ({self.spec.name!r})")
+        f = float(factor)
+        self._w += f * other._w
+        self._w2 += (f * f) * other._w2
+        self.entries += other.entries
+        return self
+
     def scaled(self, factor: float) -> HistAccumulator:
         """Contents × factor (Σw² × factor²): e.g. a cross-section factor known after the pass."""
         f = float(factor)

@@ -18,7 +18,7 @@ total, so a band built from these is a pure shape uncertainty.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 
@@ -74,16 +74,31 @@ def _flow_mask(spec: HistSpec) -> np.ndarray:
 
 
 def unit_area(
-    values: np.ndarray, variances: np.ndarray, in_sum: np.ndarray
+    values: Any, variances: Any, in_sum: np.ndarray | None = None, *,
+    empty: Literal["zeros", "error"] = "zeros",
 ) -> tuple[np.ndarray, np.ndarray]:
-    """p = W_k/W and its delta-method variance for one weight; ``in_sum`` marks bins in W."""
-    total = float(np.sum(values[in_sum]))
+    """p = W_k/W and its delta-method variance for one weight (REFERENCES §2.11):
+    ``Var(p_k) = [(1 − 2 m_k p_k) s_k² + p_k² S] / W²``, ``S = Σ_{j in W} s_j²``, ``m_k = 1``
+    for the bins in W (the binomial p(1−p)/N for unit weights); never negative.
+
+    ``in_sum`` marks the bins that make up W (default: all given bins). A total of zero:
+    ``empty="zeros"`` gives zeros (a histogram without selected events), ``empty="error"``
+    raises ValueError (also for a non-finite total), for callers that cannot use zeros
+    (comparisons of shapes)."""
+    w = np.asarray(values, dtype=np.float64)
+    s2 = np.asarray(variances, dtype=np.float64)
+    if w.shape != s2.shape:
+        raise ValueError(f"unit_area: values {w.shape} and variances {s2.shape} differ in shape")
+    mask = np.ones(w.shape, dtype=bool) if in_sum is None else np.asarray(in_sum, dtype=bool)
+    total = float(np.sum(w[mask]))
+    if empty == "error" and (total == 0.0 or not np.isfinite(total)):
+        raise ValueError(f"unit_area: total of the bin values is {total}; cannot normalise")
     if total == 0.0:
-        return np.zeros_like(values), np.zeros_like(variances)
-    s_tot = float(np.sum(variances[in_sum]))
-    p = values / total
-    var = ((1.0 - 2.0 * p * in_sum) * variances + p * p * s_tot) / (total * total)
-    return p, var
+        return np.zeros_like(w), np.zeros_like(s2)
+    s_tot = float(np.sum(s2[mask]))
+    p = w / total
+    var = ((1.0 - 2.0 * p * mask) * s2 + p * p * s_tot) / (total * total)
+    return p, np.maximum(var, 0.0)
 
 
 def _unit(spec: HistSpec) -> str:

@@ -28,16 +28,14 @@ cross-section bookkeeping before any per-bin-width normalisation); Σw² comes a
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from evtkin.hists.fill import AxisSpec, HistSpec
 
-__all__ = ["SUFFIXES", "Response", "response_specs", "write_responses"]
+__all__ = ["SUFFIXES", "Response", "response_specs"]
 
 SUFFIXES = ("#response", "#truth", "#reco")
 
@@ -111,19 +109,3 @@ class Response:
             "reco": clean(self.reco), "reco_sumw2": clean(self.reco_w2),
             "efficiency": clean(self.efficiency), "purity": clean(self.purity),
         }
-
-
-def write_responses(folder: str | Path, result: Any) -> Path | None:
-    """``responses.json``: per sample and histogram the matrix, truth and reco histograms,
-    efficiency and purity (see :meth:`Response.to_dict`). Nothing is written without any."""
-    data = {s: {h: r.to_dict() for h, r in getattr(res, "responses", {}).items()}
-            for s, res in result.samples.items()}
-    data = {s: d for s, d in data.items() if d}
-    if not data:
-        return None
-    target = Path(folder) / "responses.json"
-    doc = {"about": "response matrices: rows = truth bin, columns = reconstructed bin, flow "
-                    "bins included; contents in pb (σ-normalised Σw); efficiency and purity per "
-                    "in-range bin", "samples": data}
-    target.write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n", encoding="utf-8")
-    return target

@@ -86,10 +86,7 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
         acc = HistAccumulator(plan.hist_specs[hname], variations)
         for (s, h, i, pid), part in sorted(partial.hists.items()):
             if s == name and h == hname:
-                f = factor(i, pid)
-                acc._w += f * part._w
-                acc._w2 += (f * f) * part._w2
-                acc.entries += part.entries
+                acc.add_scaled(part, factor(i, pid))
         weighted[hname] = acc
         try:
             normalised[hname] = normalise(acc, hspec.normalise, luminosity_fb=spec.luminosity_fb)
@@ -211,19 +208,19 @@ def run(
     folder there (default: the config's ``[output] directory``, else nothing is written).
     ``jobs`` and ``dask`` mean what ``--jobs`` and ``--dask`` mean on the command line:
     ``jobs=1`` runs in this process on one core, ``jobs=N`` in N local worker processes,
-    ``dask="local"`` or a scheduler address on a Dask cluster (``jobs``: its number of
-    workers with ``"local"``); without either, small inputs run here with the reader's
-    threads and larger ones on every core. It works the same from a script (no
-    ``if __name__ == "__main__":`` guard needed), a notebook and the command line.
-    ``max_events``: read at most this many events from each input file. ``step_size``:
-    events per chunk (results do not depend on it). ``progress``: show a progress bar
-    (``None``: only on a terminal). ``executor``: where the work units run, instead of
-    ``jobs``/``dask`` (see :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is
-    skipped and listed in the provenance and results (default: the run stops with an error
-    naming its file and range). ``unit_bytes``: target size of byte-range units of plain LHE files (default:
-    automatic from the number of workers). ``part``: ``(K, N)`` reads only the K-th of N
-    parts of the input files (:func:`evtkin.run.parts.split_files`), for jobs whose results
-    folders ``evtkin merge`` adds up.
+    ``dask="local"`` or a scheduler address on a Dask cluster (``jobs``: its number of workers
+    with ``"local"``); without either, small inputs run here with the reader's threads and
+    larger ones on every core. It works the same from a script (no ``if __name__ ==
+    "__main__":`` guard needed), a notebook and the command line. ``max_events``: read at most
+    this many events from each input file. ``step_size``: events per chunk (results do not
+    depend on it). ``progress``: show a progress bar (``None``: only on a terminal).
+    ``executor``: where the work units run, instead of ``jobs``/``dask`` (see
+    :mod:`evtkin.run.executors`). ``skip_bad``: a failing unit is skipped and listed in the
+    provenance and results (default: the run stops with an error naming its file and range).
+    ``unit_bytes``: target size of byte-range units of plain LHE files (default: automatic from
+    the number of workers). ``part``: ``(K, N)`` reads only the K-th of N parts of the input
+    files (:func:`evtkin.run.parts.split_files`), for jobs whose results folders ``evtkin
+    merge`` adds up.
     """
     started = _dt.datetime.now(_dt.timezone.utc)
     t0 = time.perf_counter()
