@@ -57,6 +57,10 @@ def test_round_trip_exact(tmp_path: Path, form: str) -> None:
     np.testing.assert_array_equal(got.event_number, ev.event_number)
     np.testing.assert_array_equal(ak.to_numpy(got.weights), ak.to_numpy(ev.weights))
     np.testing.assert_array_equal(got.weight, ak.to_numpy(ev.weights)[:, 0])
+    # the same columns by name, in the order hepmc_info gives
+    assert tuple(ak.fields(got.named_weights)) == NAMES
+    np.testing.assert_array_equal(ak.to_numpy(got.named_weights[NAMES[1]]),
+                                  ak.to_numpy(ev.weights)[:, 1])
     for f in ("scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb"):
         np.testing.assert_array_equal(got[f], ev[f])
     for f in ("pdgid", "status", "prod_vertex", "end_vertex", "px", "py", "pz", "energy", "mass"):
@@ -143,6 +147,7 @@ def test_io_genevent_form(tmp_path: Path) -> None:
     info = evtkin.hepmc_info(path)
     assert info.form == "IO_GenEvent"
     assert info.weight_names == ("0",)
+    assert ak.fields(ev.named_weights) == ["0"]
 
 
 @pytest.mark.parametrize("threads", [0, 1, 2])

@@ -9,7 +9,8 @@ Pipeline (one run of :func:`read_hepmc`), as for LHE files (:mod:`evtkin.io.lhe`
 
 Each chunk is an awkward Array with one record per event: ``event_number`` (int64),
 ``weight`` (the first weight; 1 for an event without weights), ``weights`` (regular
-``n x k``, columns in the order of ``hepmc_info(path).weight_names``), ``scale``,
+``n x k``, columns in the order of ``hepmc_info(path).weight_names``), ``named_weights``
+(the same columns as a record with one field per weight name), ``scale``,
 ``alpha_qcd``, ``alpha_qed``, ``xsec_pb``, ``xsec_err_pb`` (float64, NaN where the file
 has none; in IO_GenEvent files the unset value -1 of scale and couplings reads as NaN),
 ``particles`` (jagged ``Particle`` records, see :mod:`evtkin.events`: ``pdgid``,
@@ -198,7 +199,7 @@ def _finish_columns(out: Parsed, form: int, k: int) -> None:
 # ------------------------------------------------------------------ chunks
 
 
-def _concat(parts: list[tuple[Parsed, int, int]], k: int) -> ak.Array:
+def _concat(parts: list[tuple[Parsed, int, int]], k: int, wnames: tuple[str, ...]) -> ak.Array:
     """One chunk from events ``[a, b)`` of each parsed buffer, as an awkward Array."""
     ev_i, ev_f, wts, p_i, p_f, v_i, v_f = [], [], [], [], [], [], []
     p_counts, v_counts = [], []
@@ -237,11 +238,12 @@ def _concat(parts: list[tuple[Parsed, int, int]], k: int) -> ak.Array:
         ak.index.Index64(v_off),
         C.RecordArray(vfields, list(VERTEX_FIELDS), length=int(v_off[-1])),
     )
-    weights = C.RegularArray(C.NumpyArray(np.ascontiguousarray(W).reshape(-1)), k, zeros_length=n)
+    W = np.ascontiguousarray(W).reshape(n, k)
+    weights = C.RegularArray(C.NumpyArray(W.reshape(-1)), k, zeros_length=n)
     columns: list[Any] = [C.NumpyArray(np.ascontiguousarray(E_i[0]))]
     columns += [C.NumpyArray(np.ascontiguousarray(E_f[j])) for j in range(c.N_EVF)]
-    columns += [weights, particles, vertices]
-    names = ["event_number", *EVENT_FIELDS, "weights", "particles", "vertices"]
+    columns += [weights, _events.named_weights(W, wnames), particles, vertices]
+    names = ["event_number", *EVENT_FIELDS, "weights", "named_weights", "particles", "vertices"]
     return ak.Array(C.RecordArray(columns, names, length=n))
 
 
@@ -538,11 +540,14 @@ def read_hepmc(
                     byte_range)  # fmt: skip
 
 
-def _weight_count(form: int, run: dict[str, Any], first: bytes) -> int:
+def _weight_names(form: int, run: dict[str, Any], first: bytes) -> tuple[str, ...]:
+    """The names of the weight columns (as ``hepmc_info`` gives them: the run's or the first
+    event's names, else ``"0"``, ``"1"``, ...)."""
     names, nw, *_ = _first_event_facts(form, first[: 4 << 20])
-    if form == c.FORM_V3:
-        return len(run["names"]) if run["names"] else nw
-    return len(names) if names else nw
+    declared = run["names"] if form == c.FORM_V3 else names
+    if declared:
+        return tuple(str(x) for x in declared)
+    return tuple(str(i) for i in range(nw))
 
 
 def _iterate(
@@ -560,7 +565,8 @@ def _iterate(
         with open(source, "rb") as fh:
             fh.seek(offset)
             first = fh.read(4 << 20)
-        k = _weight_count(form, run, first)
+        wnames = _weight_names(form, run, first)
+        k = len(wnames)
         size = file_size(source)
         start = max(byte_range[0], offset)
         stop_abs = min(byte_range[1], size)
@@ -581,7 +587,8 @@ def _iterate(
             if not block:
                 break
             first += block
-        k = _weight_count(form, run, first)
+        wnames = _weight_names(form, run, first)
+        k = len(wnames)
         need_end = True
     reader = _Buffers(stream, first, base, source, threaded=threads > 0)
     pool = (ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-hepmc-parse")
@@ -647,7 +654,7 @@ def _iterate(
                 in_chunk += take
                 a += take
                 if in_chunk >= step:
-                    out = _concat(parts, k)
+                    out = _concat(parts, k, wnames)
                     parts, in_chunk = [], 0
                     yield out
                     del out
@@ -688,7 +695,7 @@ def _iterate(
             _problem(f"{name}: the file ends without the END_EVENT_LISTING line after "
                      f"{n_seen} complete events (cut short?)", strict)  # fmt: skip
         if parts:
-            out = _concat(parts, k)
+            out = _concat(parts, k, wnames)
             parts = []
             yield out
     finally:
