@@ -31,6 +31,7 @@ _LAZY: dict[str, str] = {
     "HepMCInfo": "evtkin.io.hepmc_header",
     "write_hepmc": "evtkin.io.hepmc_write",
     "run": "evtkin.run.pipeline",
+    "cluster_jets": "evtkin.select.clustering",
     "compare_results": "evtkin.output.compare_run",
     "load_results": "evtkin.output.results",
     "Results": "evtkin.output.results",
@@ -52,6 +53,7 @@ __all__ = [
     "ResultsError",
     "SampleHists",
     "__version__",
+    "cluster_jets",
     "compare_results",
     "density",
     "hepmc_info",
@@ -75,6 +77,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from evtkin.output.compare_run import compare_results
     from evtkin.output.results import HistBand, Results, SampleHists, load_results
     from evtkin.run.pipeline import run
+    from evtkin.select.clustering import cluster_jets
 
 
 def __getattr__(name: str) -> Any:
