@@ -114,7 +114,7 @@ def test_every_recipe_matches_the_hand_computation(lhe, normalise) -> None:  # t
     s = res.samples["s"]
     hand = _hand(unit_area=normalise == "unit_area")
     nh = s.histograms["h"]
-    assert nh.values[0][1:4] == pytest.approx(hand["nominal"][0], rel=1e-12)
+    assert nh.rows[0][1:4] == pytest.approx(hand["nominal"][0], rel=1e-12)
     bands = s.bands["h"]
     assert set(bands) == set(RECIPES)  # automatic bands are off once recipes are given
     for name in RECIPES:
@@ -133,11 +133,11 @@ def test_unit_area_band_is_a_shape_band(lhe) -> None:  # type: ignore[no-untyped
     raw = run(config([lhe], uncertainties={"pdf": RECIPES["pdf"]})).samples["s"]
     unit = run(config([lhe], normalise="unit_area",
                       uncertainties={"pdf": RECIPES["pdf"]})).samples["s"]
-    w0 = raw.histograms["h"].values[0].sum()
+    w0 = raw.histograms["h"].rows[0].sum()
     scaled = raw.bands["h"]["pdf"].up / w0  # what scaling the cross-section band would give
     assert not np.allclose(unit.bands["h"]["pdf"].up, scaled)
     # every variation sums to one on its own, so the band edges of all bins are shape deviations
-    assert np.allclose(unit.histograms["h"].values.sum(axis=1), 1.0)
+    assert np.allclose(unit.histograms["h"].rows.sum(axis=1), 1.0)
 
 
 def test_automatic_bands_from_the_files_combine_attributes(lhe) -> None:  # type: ignore[no-untyped-def]

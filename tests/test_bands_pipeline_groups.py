@@ -48,10 +48,10 @@ def test_pipeline_sums_group_weights_per_bin_before_squaring(tmp_path, monkeypat
     monkeypatch.setattr(lhe_input, "lhe_chunks", with_groups)
     s = run(config([f], uncertainties={"automatic": False})).samples["s"]
     h = s.histograms["h"]
-    assert h.values[0][1:3] == pytest.approx(SUMW)
-    assert h.variances[0][1:3] == pytest.approx(SUMW2_GROUPED)
-    assert h.variances[1][1:3] == pytest.approx([4 * v for v in SUMW2_GROUPED])  # variation
-    assert h.values[1][1:3] == pytest.approx([2 * v for v in SUMW])
+    assert h.rows[0][1:3] == pytest.approx(SUMW)
+    assert h.row_variances[0][1:3] == pytest.approx(SUMW2_GROUPED)
+    assert h.row_variances[1][1:3] == pytest.approx([4 * v for v in SUMW2_GROUPED])  # variation
+    assert h.rows[1][1:3] == pytest.approx([2 * v for v in SUMW])
 
 
 def test_without_groups_events_are_independent(tmp_path, monkeypatch) -> None:  # type: ignore[no-untyped-def]
@@ -64,7 +64,7 @@ def test_without_groups_events_are_independent(tmp_path, monkeypatch) -> None:  
 
     monkeypatch.setattr(lhe_input, "lhe_chunks", without_groups)
     h = run(config([f])).samples["s"].histograms["h"]
-    assert h.variances[0][1:3] == pytest.approx(SUMW2_INDEPENDENT)
+    assert h.row_variances[0][1:3] == pytest.approx(SUMW2_INDEPENDENT)
 
 
 def _reader_exposes_groups() -> bool:
@@ -83,4 +83,4 @@ def test_real_reader_groups_reach_the_histograms(tmp_path) -> None:  # type: ign
     chunk = next(iter(read_lhe(f)))
     assert ak.to_list(chunk["group"]) == FIRST
     h = run(config([f], uncertainties={"automatic": False})).samples["s"].histograms["h"]
-    assert h.variances[0][1:3] == pytest.approx(SUMW2_GROUPED)
+    assert h.row_variances[0][1:3] == pytest.approx(SUMW2_GROUPED)

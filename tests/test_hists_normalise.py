@@ -94,7 +94,7 @@ def test_unit_area_variance_vs_toy_monte_carlo() -> None:
 def test_unit_area_each_variation_on_its_own() -> None:
     acc, _w = _filled(nvar=3)
     u = normalise(acc, "unit_area")
-    np.testing.assert_allclose(u.values.reshape(4, -1).sum(axis=1), 1.0, rtol=1e-12)
+    np.testing.assert_allclose(u.rows.reshape(4, -1).sum(axis=1), 1.0, rtol=1e-12)
 
 
 def test_unit_area_in_range_only() -> None:
@@ -109,8 +109,8 @@ def test_unit_area_in_range_only() -> None:
 def test_raw_keeps_contents_and_unknown_mode_is_an_error() -> None:
     acc, _w = _filled()
     r = normalise(acc, "raw")
-    assert np.array_equal(r.values, acc.sumw)
-    assert np.array_equal(r.variances, acc.sumw2)
+    assert np.array_equal(r.rows, acc.sumw)
+    assert np.array_equal(r.row_variances, acc.sumw2)
     with pytest.raises(ValueError, match="unknown normalisation"):
         normalise(acc, "per_bin")
 

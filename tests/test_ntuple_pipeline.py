@@ -237,7 +237,7 @@ def test_entry_range_units_merge_to_the_whole_file_result():
     a, b = finalise(plan, whole)["ttbar_reco"], finalise(plan, merged)["ttbar_reco"]
     assert [r["n_raw"] for r in a.cutflow] == [r["n_raw"] for r in b.cutflow]
     for name in a.histograms:
-        np.testing.assert_allclose(a.histograms[name].values, b.histograms[name].values,
+        np.testing.assert_allclose(a.histograms[name].rows, b.histograms[name].rows,
                                    rtol=1e-12, atol=1e-15)
     rec = merged.files[("ttbar_reco", 0)]
     assert rec.n_events == 20000

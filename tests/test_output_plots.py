@@ -32,7 +32,7 @@ def _sample(name: str, shift: float) -> SampleResult:
     b.fill(x, y, weight=w)
     na = normalise(a, "xsec_per_bin")
     return SampleResult(name, name.upper(), histograms={
-        "mll": hist_result(na, {"scale": envelope(na.values[0], na.values[1:])}),
+        "mll": hist_result(na, {"scale": envelope(na.rows[0], na.rows[1:])}),
         "mll_y": hist_result(normalise(b, "xsec_per_bin")),
     })
 

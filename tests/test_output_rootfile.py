@@ -30,7 +30,7 @@ def _hr(ndim: int, variable: bool):  # type: ignore[no-untyped-def]
     acc = HistAccumulator(HistSpec(f"h{ndim}", tuple(axes), "test"), ("a", "b"))
     acc.fill(*vals, weight=w, variations=w[:, None] * RNG.normal(1, 0.1, (n, 2)))
     nh = normalise(acc, "xsec_per_bin")
-    return hist_result(nh, {"pdf": hessian_symmetric(nh.values[0], nh.values[1:])}), acc
+    return hist_result(nh, {"pdf": hessian_symmetric(nh.rows[0], nh.rows[1:])}), acc
 
 
 def test_th1d_and_th2d_round_trip(tmp_path: Path) -> None:

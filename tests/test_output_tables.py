@@ -43,9 +43,9 @@ def _results() -> Results:
     a2.fill(x, y, weight=w, variations=wv)
     n1 = normalise(a1, "xsec_per_bin")
     n2 = normalise(a2, "unit_area")
-    h1 = hist_result(n1, {"scale": envelope(n1.values[0], n1.values[1:], ["up", "down"])},
+    h1 = hist_result(n1, {"scale": envelope(n1.rows[0], n1.rows[1:], ["up", "down"])},
                      keep_variations=True)
-    h2 = hist_result(n2, {"scale": envelope(n2.values[0], n2.values[1:])})
+    h2 = hist_result(n2, {"scale": envelope(n2.rows[0], n2.rows[1:])})
     cut = [{"step": "all", "n_raw": n, "sum_w": 30.0, "sum_w2": 1.5},
            {"step": "two leptons", "n_raw": 1200, "sum_w": 12.0, "sum_w2": 0.6},
            {"step": "mass window", "n_raw": 300, "sum_w": 3.0, "sum_w2": 0.15}]

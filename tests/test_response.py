@@ -81,7 +81,7 @@ def test_response_matrix_matches_independent_numpy(files):
     np.testing.assert_allclose(resp.truth, ref_t, rtol=1e-12)
     np.testing.assert_allclose(resp.reco, ref_r, rtol=1e-12)
     # the reconstructed histogram is the ordinary (raw) histogram of the run
-    np.testing.assert_allclose(resp.reco, res.samples["tt"].histograms["lep_pt"].values[0],
+    np.testing.assert_allclose(resp.reco, res.samples["tt"].histograms["lep_pt"].rows[0],
                                rtol=1e-12)
     # rows/columns: matched + truth-only = truth, matched + reco-only = reco, both ≥ 0
     np.testing.assert_allclose(resp.matrix.sum(axis=1) + resp.misses, resp.truth, rtol=1e-12)
@@ -108,7 +108,7 @@ def test_truth_histogram_equals_the_same_config_on_the_lhe_file(files):
     gen = run(lhe_cfg)
     # IDWTUP = 3 with XSECUP = σ (LHEF accord) vs the ntuple's σ override: the same event weights
     np.testing.assert_allclose(res.samples["tt"].responses["lep_pt"].truth,
-                               gen.samples["gen"].histograms["lep_pt"].values[0], rtol=1e-12)
+                               gen.samples["gen"].histograms["lep_pt"].rows[0], rtol=1e-12)
 
 
 def test_truth_join_errors(files, tmp_path):

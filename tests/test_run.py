@@ -136,7 +136,7 @@ def test_normalisations_integrate_to_sigma_and_sigma_times_lumi(tmp_path):
     h = res["dy"]["dsig"]
     total = h.sum(flow=True).value  # σ per bin (pb), flow bins included
     # the stored density (results.json, plots): Σ dσ/dx·Δx over the range + the flow bins
-    dens = res.samples["dy"].histograms["dsig"].values[0]
+    dens = res.samples["dy"].histograms["dsig"].rows[0]
     widths = np.diff(h.axes[0].edges)
     assert np.sum(dens[1:-1] * widths) + dens[0] + dens[-1] == pytest.approx(total, rel=1e-12)
     # IDWTUP = 3 with unit weights: Σw = Σ XSECUP (LHEF accord); events with < 2 leptons give

@@ -138,7 +138,7 @@ def test_sum_of_a_cross_section_histogram_is_the_selected_sigma(lhe_file, sample
     np.testing.assert_allclose(d.variances * 25.0, h.variances(), rtol=1e-14)
     assert (d.unit, d.label) == ("pb/GeV", "dσ/dm_{ℓℓ}")
     # the stored density (what results.json and the plots hold) agrees
-    np.testing.assert_allclose(d.values, res.samples["dy"].histograms["mll"].values[0][1:-1],
+    np.testing.assert_allclose(d.values, res.samples["dy"].histograms["mll"].rows[0][1:-1],
                                rtol=1e-14)
     # axes: the quantity as name, the label without unit, the unit in the metadata
     ax = h.axes[0]
@@ -207,3 +207,21 @@ def test_load_results_gives_equal_objects_back(lhe_file, tmp_path):
     other = evtkin.load_results(tmp_path / "out")
     other["dy"]["mll"][2] = hist.accumulators.WeightedSum(1.0, 1.0)
     assert other != res
+
+
+def test_one_histogram_record_from_normalisation_to_the_files(lhe_file, tmp_path):
+    from evtkin.hists.record import HistRecord
+    from evtkin.output.tables import read_results
+
+    res = run(config(lhe_file), out=tmp_path / "out")
+    rec = res.samples["dy"].histograms["mll"]
+    assert isinstance(rec, HistRecord)
+    assert rec.rows is not None and rec.rows.shape == (3, 10)  # nominal + 2 variations, flow
+    assert np.array_equal(rec.values, rec.rows[0])
+    assert rec.bands == res.samples["dy"].bands["mll"]  # the record carries its bands
+    back = read_results(tmp_path / "out").samples["dy"].histograms["mll"]
+    assert type(back) is HistRecord
+    assert back.rows is None  # every weight's contents stay in memory
+    np.testing.assert_array_equal(back.values, rec.values)
+    np.testing.assert_array_equal(back.variances, rec.variances)
+    np.testing.assert_array_equal(back.bands["scale"].up, rec.bands["scale"].up)

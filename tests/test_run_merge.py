@@ -189,6 +189,6 @@ def test_an_ntuple_run_merges_back_to_itself(tmp_path) -> None:  # type: ignore[
     merged = merge_results(tmp_path / "merged", [tmp_path / "one"])
     for s, res in one.samples.items():
         for h, nh in res.histograms.items():
-            assert np.array_equal(merged.samples[s].histograms[h].values, nh.values)
+            assert np.array_equal(merged.samples[s].histograms[h].rows, nh.rows)
     prov = json.loads((tmp_path / "merged" / "provenance.json").read_text())
     assert prov["inputs"][0]["format"] == "root"  # the ntuple run information came back

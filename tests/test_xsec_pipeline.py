@@ -37,11 +37,11 @@ def test_split_sample_equals_one_equivalent_file(tmp_path) -> None:  # type: ign
     assert split.xsec.sigma_pb == pytest.approx(16.0, rel=1e-12)
     assert single.xsec.sigma_pb == pytest.approx(16.0, rel=1e-12)
     hs, h1 = split.histograms["h"], single.histograms["h"]
-    assert hs.values[0] == pytest.approx(h1.values[0], rel=1e-12)
-    assert hs.variances[0] == pytest.approx(h1.variances[0], rel=1e-12)
+    assert hs.rows[0] == pytest.approx(h1.rows[0], rel=1e-12)
+    assert hs.row_variances[0] == pytest.approx(h1.row_variances[0], rel=1e-12)
     # hand: every event weighs 1.6 pb; bin [0, 20) holds 4 events, [20, 40) 5, overflow 1
-    assert hs.values[0].tolist() == pytest.approx([0.0, 6.4, 8.0, 1.6])
-    assert hs.variances[0].tolist() == pytest.approx([0.0, 4 * 1.6**2, 5 * 1.6**2, 1.6**2])
+    assert hs.rows[0].tolist() == pytest.approx([0.0, 6.4, 8.0, 1.6])
+    assert hs.row_variances[0].tolist() == pytest.approx([0.0, 4 * 1.6**2, 5 * 1.6**2, 1.6**2])
     # per-file record: σ estimates, weights in the combination
     files = split.xsec.to_dict()["files"]
     assert [f["sigma_pb"] for f in files] == pytest.approx([10.0, 20.0])
@@ -71,8 +71,8 @@ def test_every_idwtup_mode_with_two_processes(tmp_path, idwtup) -> None:  # type
     assert s.xsec.sigma_pb == pytest.approx(w.sum(), rel=1e-12)
     assert s.xsec.mode == idwtup
     sel = np.array(SC) < 20
-    assert s.histograms["h"].values[0][1:3] == pytest.approx([w[sel].sum(), w[~sel].sum()])
-    assert s.histograms["h"].variances[0][1:3] == pytest.approx(
+    assert s.histograms["h"].rows[0][1:3] == pytest.approx([w[sel].sum(), w[~sel].sum()])
+    assert s.histograms["h"].row_variances[0][1:3] == pytest.approx(
         [(w[sel] ** 2).sum(), (w[~sel] ** 2).sum()])
     if abs(idwtup) in (2, 3):
         assert not s.xsec.warnings  # agrees with Σ XSECUP = 12 pb
@@ -90,8 +90,8 @@ def test_negative_weights_error_is_sqrt_sumw2_and_neff_is_reported(tmp_path) -> 
     w = np.array(x) / 6  # hand: IDWTUP = -4, w = XWGTUP / N
     h = s.histograms["h"]
     # MC error √Σw² per bin, not √N: bin 1 holds +3, -1, +4 → √(9 + 1 + 16)/6
-    assert math.sqrt(h.variances[0][1]) == pytest.approx(math.sqrt(26) / 6)
-    assert math.sqrt(h.variances[0][2]) == pytest.approx(math.sqrt(4 + 4 + 1) / 6)
+    assert math.sqrt(h.row_variances[0][1]) == pytest.approx(math.sqrt(26) / 6)
+    assert math.sqrt(h.row_variances[0][2]) == pytest.approx(math.sqrt(4 + 4 + 1) / 6)
     neff = w.sum() ** 2 / (w**2).sum()  # hand: (7/6)² / (35/36) = 49/35
     assert neff == pytest.approx(49 / 35)
     assert s.xsec.n_eff == pytest.approx(neff)
@@ -117,7 +117,7 @@ def test_no_declared_cross_section(tmp_path) -> None:  # type: ignore[no-untyped
         run(config([f], edges=EDGES))
     s = run(config([f], edges=EDGES, sample={"cross_section_pb": 9.0})).samples["s"]
     assert s.xsec.sigma_pb == pytest.approx(9.0)
-    assert s.histograms["h"].values[0][1:3] == pytest.approx([3.0, 6.0])  # hand: 9 pb / 3 each
+    assert s.histograms["h"].rows[0][1:3] == pytest.approx([3.0, 6.0])  # hand: 9 pb / 3 each
     # IDWTUP = -4 with XSECUP = 0: σ from the weights, and no claim of agreeing with "0 pb"
     g = write(tmp_path / "y.lhe", lhe_text([5.0, 25.0], [2.0, 4.0], idwtup=-4,
                                            processes=[(0.0, 0.0, 1)]))

@@ -17,12 +17,12 @@ total, so a band built from these is a pure shape uncertainty.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
 
 from evtkin.hists.fill import HistAccumulator, HistSpec
+from evtkin.hists.record import HistRecord
 
 __all__ = ["MODES", "NormalisedHist", "bin_volumes", "normalise", "shape_fractions", "unit_area"]
 
@@ -31,27 +31,8 @@ MODES: tuple[str, ...] = ("raw", "xsec_per_bin", "events", "unit_area")
 PB_PER_FB = 1000.0  # 1 fb⁻¹ = 1000 pb⁻¹
 
 
-@dataclass
-class NormalisedHist:
-    """Normalised contents: ``values``/``variances`` of shape ``(1 + V, *spec.shape)`` with flow."""
-
-    spec: HistSpec
-    variations: tuple[str, ...]
-    values: np.ndarray
-    variances: np.ndarray
-    normalisation: str
-    y_unit: str
-    y_label: str
-    entries: int = 0
-    norm_includes_flow: bool = True
-
-    @property
-    def nominal(self) -> np.ndarray:
-        return self.values[0]
-
-    @property
-    def nominal_variance(self) -> np.ndarray:
-        return self.variances[0]
+#: what :func:`normalise` returns: the one histogram record (:mod:`evtkin.hists.record`)
+NormalisedHist = HistRecord
 
 
 def bin_volumes(spec: HistSpec) -> np.ndarray:
@@ -110,6 +91,9 @@ def _unit(spec: HistSpec) -> str:
     return "pb/(" + "·".join(parts) + ")"
 
 
+_record = HistRecord.from_rows
+
+
 def normalise(
     acc: HistAccumulator,
     mode: Mode | str = "raw",
@@ -117,23 +101,24 @@ def normalise(
     luminosity_fb: float | None = None,
     include_flow: bool = True,
     weights_in_pb: bool = True,
-) -> NormalisedHist:
-    """Normalise an accumulator (all weights at once); see the module docstring for the modes."""
+) -> HistRecord:
+    """Normalise an accumulator (all weights at once) into a :class:`HistRecord` (``rows``:
+    every weight, ``values``: the nominal); see the module docstring for the modes."""
     spec = acc.spec
     w = np.array(acc.sumw, dtype=np.float64)
     w2 = np.array(acc.sumw2, dtype=np.float64)
     xlabel = " ".join(a.label or a.name for a in spec.axes)
     if mode == "raw":
-        return NormalisedHist(spec, acc.variations, w, w2, "raw", "pb" if weights_in_pb else "",
-                              "Σw per bin", acc.entries, include_flow)
+        return _record(spec, acc.variations, w, w2, "raw", "pb" if weights_in_pb else "",
+                       "Σw per bin", acc.entries, include_flow)
     if mode == "xsec_per_bin":
         vol = bin_volumes(spec)
         inside = np.isfinite(vol)
         div = np.where(inside, vol, 1.0)
         label = f"dσ/d{xlabel}" if spec.ndim == 1 else "d²σ/(" + ")(".join(
             a.label or a.name for a in spec.axes) + ")"
-        return NormalisedHist(spec, acc.variations, w / div, w2 / (div * div), "xsec_per_bin",
-                              _unit(spec), label, acc.entries, include_flow)
+        return _record(spec, acc.variations, w / div, w2 / (div * div), "xsec_per_bin",
+                       _unit(spec), label, acc.entries, include_flow)
     if mode == "events":
         if luminosity_fb is None or not np.isfinite(luminosity_fb) or luminosity_fb < 0:
             raise ValueError(
@@ -141,30 +126,30 @@ def normalise(
                 f"(>= 0), got {luminosity_fb!r}"
             )
         lum = float(luminosity_fb) * PB_PER_FB
-        return NormalisedHist(spec, acc.variations, w * lum, w2 * lum * lum, "events", "events",
-                              "events per bin", acc.entries, include_flow)
+        return _record(spec, acc.variations, w * lum, w2 * lum * lum, "events", "events",
+                       "events per bin", acc.entries, include_flow)
     if mode == "unit_area":
         in_sum = np.ones(spec.shape, dtype=bool) if include_flow else _flow_mask(spec)
         vals = np.empty_like(w)
         vars_ = np.empty_like(w2)
         for i in range(w.shape[0]):  # each variation on its own
             vals[i], vars_[i] = unit_area(w[i], w2[i], in_sum)
-        return NormalisedHist(spec, acc.variations, vals, vars_, "unit_area", "",
-                              "fraction per bin", acc.entries, include_flow)
+        return _record(spec, acc.variations, vals, vars_, "unit_area", "",
+                       "fraction per bin", acc.entries, include_flow)
     raise ValueError(f"unknown normalisation {mode!r}; expected one of {', '.join(MODES)}")
 
 
-def shape_fractions(nh: NormalisedHist) -> np.ndarray | None:
+def shape_fractions(nh: HistRecord) -> np.ndarray | None:
     """The shape a unit-area comparison sees, for the nominal and every variation: each row of
-    ``nh.values`` as the fraction of its own total in each stored bin (flow bins included;
+    ``nh.rows`` as the fraction of its own total in each stored bin (flow bins included;
     for ``xsec_per_bin`` the per-bin quantity value x width; for ``unit_area`` without flow,
     the flow bins left out). Bands formed from these rows normalise each variation on its own,
     as :func:`normalise` does for ``unit_area``. ``None`` for 2-D histograms."""
-    if nh.spec.ndim != 1:
+    if nh.ndim != 1:
         return None
-    per_bin = np.array(nh.values, dtype=np.float64)
+    per_bin = np.array(nh.all_rows(), dtype=np.float64)
     if nh.normalisation == "xsec_per_bin":
-        per_bin[:, 1:-1] *= nh.spec.axes[0].widths
+        per_bin[:, 1:-1] *= np.diff(nh.axes[0].edges)
     elif nh.normalisation == "unit_area" and not nh.norm_includes_flow:
         per_bin[:, 0] = per_bin[:, -1] = 0.0
     total = per_bin.sum(axis=1, keepdims=True)

@@ -9,6 +9,7 @@ Every file is written to a temporary name in its folder and renamed (no half-wri
 from __future__ import annotations
 
 import csv
+import dataclasses
 import io
 import json
 import math
@@ -25,7 +26,7 @@ from evtkin._version import __version__
 from evtkin.errors import ResultsError
 from evtkin.files import atomic_write_text, safe_name
 from evtkin.hists.bands import Band
-from evtkin.hists.normalise import NormalisedHist
+from evtkin.hists.record import AxisInfo, HistRecord, HistResult, _jlist, _jnum
 
 __all__ = [
     "FORMAT",
@@ -54,92 +55,6 @@ RESULTS_JSON = "results.json"
 # plain objects
 # --------------------------------------------------------------------------------------------------
 @dataclass
-class AxisInfo:
-    name: str
-    label: str
-    unit: str
-    kind: str
-    edges: np.ndarray
-
-    @property
-    def nbins(self) -> int:
-        return int(self.edges.size - 1)
-
-    @property
-    def title(self) -> str:
-        base = self.label or self.name
-        return f"{base} [{self.unit}]" if self.unit else base
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"name": self.name, "label": self.label, "unit": self.unit, "kind": self.kind,
-                "edges": _jlist(self.edges)}
-
-
-@dataclass
-class HistResult:
-    """One normalised histogram of one sample; arrays include the flow bins."""
-
-    name: str
-    title: str
-    axes: list[AxisInfo]
-    normalisation: str
-    y_label: str
-    y_unit: str
-    entries: int
-    values: np.ndarray
-    variances: np.ndarray
-    bands: dict[str, Band] = field(default_factory=dict)
-    norm_includes_flow: bool = True
-    variation_values: dict[str, np.ndarray] | None = None
-    #: 1-D: the bands as fractions of unit area per stored bin, each variation normalised on
-    #: its own (see evtkin.hists.normalise.shape_fractions); used by shape-only comparisons
-    shape_bands: dict[str, Band] = field(default_factory=dict)
-
-    @property
-    def ndim(self) -> int:
-        return len(self.axes)
-
-    def _inner(self, a: np.ndarray) -> np.ndarray:
-        return a[(slice(1, -1),) * self.ndim]
-
-    def inner_values(self) -> np.ndarray:
-        return self._inner(self.values)
-
-    def inner_variances(self) -> np.ndarray:
-        return self._inner(self.variances)
-
-    def errors(self) -> np.ndarray:
-        """sqrt(variance), flow included."""
-        return np.sqrt(np.clip(self.variances, 0.0, None))
-
-    @property
-    def y_title(self) -> str:
-        return f"{self.y_label} [{self.y_unit}]" if self.y_unit else self.y_label
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "title": self.title,
-            "ndim": self.ndim,
-            "axes": [a.to_dict() for a in self.axes],
-            "normalisation": self.normalisation,
-            "norm_includes_flow": self.norm_includes_flow,
-            "y_label": self.y_label,
-            "y_unit": self.y_unit,
-            "entries": int(self.entries),
-            "values": _jlist(self.values),
-            "variances": _jlist(self.variances),
-            "bands": {k: {"method": b.method, "members": list(b.members),
-                          "down": _jlist(b.down), "up": _jlist(b.up)}
-                      for k, b in self.bands.items()},
-            "variation_values": None if self.variation_values is None else {
-                k: _jlist(v) for k, v in self.variation_values.items()},
-            "shape_bands": {k: {"method": b.method, "members": list(b.members),
-                                "down": _jlist(b.down), "up": _jlist(b.up)}
-                            for k, b in self.shape_bands.items()},
-        }
-
-
-@dataclass
 class SampleResult:
     name: str
     label: str = ""
@@ -157,39 +72,23 @@ class Results:
 
 
 def hist_result(
-    norm: NormalisedHist, bands: Mapping[str, Band] | None = None, *, keep_variations: bool = False,
+    norm: HistRecord, bands: Mapping[str, Band] | None = None, *, keep_variations: bool = False,
     shape_bands: Mapping[str, Band] | None = None,
-) -> HistResult:
-    """Build the plain :class:`HistResult` from normalised contents (nominal row) and bands."""
-    axes = [AxisInfo(a.name, a.label, a.unit, a.kind, a.edges_array.copy()) for a in norm.spec.axes]
+) -> HistRecord:
+    """The record ``norm`` with these bands (and, with ``keep_variations``, every variation's
+    values for ``variation_values``), as written to a results folder."""
     var_vals = None
-    if keep_variations:
-        var_vals = {n: norm.values[i + 1].copy() for i, n in enumerate(norm.variations)}
-    return HistResult(
-        name=norm.spec.name, title=norm.spec.title or norm.spec.name, axes=axes,
-        normalisation=norm.normalisation, y_label=norm.y_label, y_unit=norm.y_unit,
-        entries=int(norm.entries), values=norm.values[0].copy(),
-        variances=norm.variances[0].copy(), bands=dict(bands or {}),
-        norm_includes_flow=norm.norm_includes_flow, variation_values=var_vals,
-        shape_bands=dict(shape_bands or {}),
-    )
+    if keep_variations and norm.rows is not None:
+        var_vals = {n: norm.rows[i + 1].copy() for i, n in enumerate(norm.variations)}
+    return dataclasses.replace(
+        norm, bands=dict(bands if bands is not None else norm.bands),
+        shape_bands=dict(shape_bands if shape_bands is not None else norm.shape_bands),
+        variation_values=var_vals if keep_variations else norm.variation_values)
 
 
 # --------------------------------------------------------------------------------------------------
 # helpers
 # --------------------------------------------------------------------------------------------------
-def _jnum(x: float) -> float | None:
-    x = float(x)
-    return x if math.isfinite(x) else None
-
-
-def _jlist(a: Any) -> Any:
-    arr = np.asarray(a, dtype=np.float64)
-    if arr.ndim == 0:
-        return _jnum(float(arr))
-    return [_jlist(v) for v in arr] if arr.ndim > 1 else [_jnum(v) for v in arr]
-
-
 def _arr(x: Any, what: str) -> np.ndarray:
     try:
         return np.array(

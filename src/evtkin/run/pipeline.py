@@ -25,7 +25,8 @@ from evtkin._version import __version__
 from evtkin.config import AnalysisConfig, SampleSpec, load_config
 from evtkin.errors import ConfigError
 from evtkin.hists.fill import HistAccumulator
-from evtkin.hists.normalise import NormalisedHist, normalise
+from evtkin.hists.normalise import normalise
+from evtkin.hists.record import HistRecord
 from evtkin.hists.xsec import FileTotals, XsecResult
 from evtkin.run.executors import Executor, execute, executor_for, local_cores
 from evtkin.run.inputs import input_source
@@ -80,7 +81,7 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
             return 0.0
 
     weighted: dict[str, HistAccumulator] = {}
-    normalised: dict[str, NormalisedHist] = {}
+    normalised: dict[str, HistRecord] = {}
     for hname in plan.histograms_for(name):
         hspec = plan.config.histograms[hname]
         acc = HistAccumulator(plan.hist_specs[hname], variations)
@@ -118,12 +119,16 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
     from evtkin.hists.recipes import bands_for, resolve_recipes
 
     recipes, notes = resolve_recipes(plan.config, name, variations, [r.info for r in records])
-    bands = {h: bands_for(nh.values, recipes) for h, nh in normalised.items()} if recipes else {}
+    bands = ({h: bands_for(nh.all_rows(), recipes) for h, nh in normalised.items()}
+             if recipes else {})
     shape_bands = {}
     for h, nh in normalised.items():
         frac = shape_fractions(nh) if recipes else None
         if frac is not None:
             shape_bands[h] = bands_for(frac, recipes)
+        # the record carries its bands from here to the output files
+        nh.bands = dict(bands.get(h, {}))
+        nh.shape_bands = dict(shape_bands.get(h, {}))
     return SampleResult(name, spec.label, spec.luminosity_fb, spec.toy, xsec, variations,
                         normalised, weighted, cutflow, n_events, bands, shape_bands, recipes,
                         notes)

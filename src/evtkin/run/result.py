@@ -9,7 +9,7 @@ from pathlib import Path
 from typing import Any
 
 from evtkin.hists.fill import HistAccumulator
-from evtkin.hists.normalise import NormalisedHist
+from evtkin.hists.record import HistRecord
 from evtkin.hists.xsec import XsecResult
 from evtkin.output import tables
 from evtkin.output.results import Results
@@ -29,7 +29,8 @@ class SampleResult:
     toy: bool
     xsec: XsecResult | None
     variations: tuple[str, ...]
-    histograms: dict[str, NormalisedHist]
+    #: the normalised histograms, carrying their bands (evtkin.hists.record)
+    histograms: dict[str, HistRecord]
     #: per histogram: Σw, Σw² with the normalised per-event weights (before the normalisation mode)
     weighted: dict[str, HistAccumulator]
     cutflow: list[dict[str, Any]]
@@ -109,9 +110,7 @@ def results_record(plan: Plan, result: RunResult, *, with_cutflow: bool = True) 
             luminosity_fb=s.luminosity_fb,
             xsec=s.xsec.to_dict() if s.xsec is not None else {},
             variations=list(s.variations),
-            histograms={h: tables.hist_result(nh, getattr(s, "bands", {}).get(h),
-                                              shape_bands=getattr(s, "shape_bands", {}).get(h))
-                        for h, nh in s.histograms.items()},
+            histograms=dict(s.histograms),  # the records, with their bands
             cutflow=list(s.cutflow) if with_cutflow else [],
         )
     meta: dict[str, Any] = {"analysis": plan.config.name}
