@@ -216,7 +216,8 @@ def test_one_histogram_record_from_normalisation_to_the_files(lhe_file, tmp_path
     res = run(config(lhe_file), out=tmp_path / "out")
     rec = res.samples["dy"].histograms["mll"]
     assert isinstance(rec, HistRecord)
-    assert rec.rows is not None and rec.rows.shape == (3, 10)  # nominal + 2 variations, flow
+    assert rec.rows is not None
+    assert rec.rows.shape == (3, 10)  # nominal + 2 variations, 8 bins + flow
     assert np.array_equal(rec.values, rec.rows[0])
     assert rec.bands == res.samples["dy"].bands["mll"]  # the record carries its bands
     back = read_results(tmp_path / "out").samples["dy"].histograms["mll"]
