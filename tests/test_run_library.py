@@ -226,3 +226,46 @@ def test_one_histogram_record_from_normalisation_to_the_files(lhe_file, tmp_path
     np.testing.assert_array_equal(back.values, rec.values)
     np.testing.assert_array_equal(back.variances, rec.variances)
     np.testing.assert_array_equal(back.bands["scale"].up, rec.bands["scale"].up)
+
+
+def test_command_line_and_library_give_equal_results(lhe_file, tmp_path):
+    # the same config as TOML for `evtkin run --jobs 2` and as a mapping for evtkin.run(jobs=2)
+    toml = f"""
+[analysis]
+name = "library test"
+[samples.dy]
+files = ["{lhe_file}"]
+luminosity_fb = 2.0
+[objects.leptons]
+particles = ["charged_leptons"]
+min_pt = 20.0
+max_abs_eta = 2.4
+[[step]]
+name = "two leptons"
+require = "count(leptons) >= 2"
+[[step]]
+name = "window"
+require = "70 < mass(leptons[0] + leptons[1]) < 110"
+[quantities]
+mll = "mass(leptons[0] + leptons[1])"
+[histograms.mll]
+x = {{ value = "mll", bins = 8, range = [70, 110], label = "m_{{ℓℓ}}", unit = "GeV" }}
+normalise = "xsec_per_bin"
+[histograms.lead_pt]
+x = {{ value = "leptons[0].pt", edges = [20, 30, 45, 70, 120] }}
+normalise = "events"
+[uncertainties.scale]
+method = "envelope"
+ids = ["up", "down"]
+[output]
+formats = ["json", "cutflow"]
+"""
+    cfg = tmp_path / "lib.toml"
+    cfg.write_text(toml, encoding="utf-8")
+    done = _python(["-m", "evtkin", "run", str(cfg), "--out", str(tmp_path / "cli"),
+                    "--jobs", "2"], tmp_path)
+    assert done.returncode == 0, done.stderr[-3000:]
+    from_cli = evtkin.load_results(tmp_path / "cli")
+    in_process = evtkin.run(cfg, jobs=2)
+    assert from_cli == in_process
+    assert in_process == run(config(lhe_file))  # a mapping config: the same histograms
