@@ -134,11 +134,14 @@ def test_complete_example_loads_and_runs(tmp_path: Path, block: str) -> None:
     for name in cfg.samples:
         chunk = _first_chunk(plan, name)
         view, masks = analyse_chunk(plan, chunk)
-        assert len(masks) == 1 + len(cfg.steps)
+        assert len(masks) == len(plan.cutflow_rows)
+        assert len(masks) == 1 + len(cfg.steps) + sum(len(r.steps) for r in cfg.regions.values())
         for hname in plan.histograms_for(name):
-            h = cfg.histograms[hname]
-            row = ([s.name for s in cfg.steps].index(h.after) + 1 if h.after is not None
-                   else len(cfg.steps))
+            h = plan.histogram(hname)
+            row = plan.row_of(hname)
+            if not h.regions:
+                assert row == ([s.name for s in cfg.steps].index(h.after) + 1
+                               if h.after is not None else len(cfg.steps))
             values, rows = hist_entries(view, hname, masks[row])
             assert len(values) == len(h.axes)
             assert all(len(v) == len(rows) for v in values)
@@ -203,9 +206,9 @@ def test_error_example_gives_the_documented_message(tmp_path: Path, block: str,
 # functions (not as module-level constants), so they are listed here from reading it;
 # test_listed_keys_match_what_config_reads checks this list against what the reader asks for.
 KEYS: dict[str, tuple[str, ...]] = {
-    "analysis": ("name", "description", "note", "luminosity_fb", "step_size"),
+    "analysis": ("name", "description", "note", "luminosity_fb", "step_size", "weight"),
     "samples": ("files", "label", "format", "cross_section_pb", "luminosity_fb", "toy", "input",
-                "weights_give", "truth_files"),
+                "weights_give", "truth_files", "weight"),
     "objects": ("particles", "status", "min_pt", "max_abs_eta", "max_abs_rapidity",
                 "from_decay_of", "isolation", "clustering", "require", "from"),
     "objects.isolation": ("against", "against_objects", "within_dr", "min_pt"),
@@ -219,11 +222,15 @@ KEYS: dict[str, tuple[str, ...]] = {
     "composites.ttbar_lepton_jets": ("build", "lepton", "jets", "missing_pt", "use_b_tags",
                                      "neutrino_root", "w_mass", "top_mass", "w_resolution",
                                      "top_resolution", "max_jets"),
-    "histograms": ("title", "x", "y", "normalise", "after", "samples", "response"),
+    "histograms": ("title", "x", "y", "normalise", "after", "samples", "response", "regions"),
     "histograms.axis": ("value", "bins", "range", "edges", "label", "unit"),
     "output": ("directory", "formats", "plot_formats"),
     "uncertainties": ("automatic",),
-    "uncertainties.recipe": ("method", "group", "ids", "drop_anticorrelated", "of", "samples"),
+    "uncertainties.recipe": ("method", "group", "ids", "drop_anticorrelated", "of", "samples",
+                             "systematic"),
+    "regions": ("after", "require", "steps"),
+    "systematics": ("objects", "kind", "shift", "resolution", "drop", "seed"),
+    "skims": ("columns", "after", "region", "formats", "samples", "variation_weights"),
 }
 
 # where each table is documented (a fragment of its '## ' heading)
@@ -232,7 +239,9 @@ HOME = {
     "overlap_removal": "`[[overlap_removal]]`", "missing_pt": "`[missing_pt]`",
     "step": "`[[step]]`", "composites": "`[composites.NAME]`", "histograms": "`[histograms.NAME]`",
     "output": "`[output]`", "uncertainties": "`[uncertainties]`", "classes": "`[classes]`",
-    "quantities": "`[quantities]`",
+    "quantities": "`[quantities]`", "regions": "`[regions.NAME]`",
+    "tables": "Event weights and tables", "systematics": "`[systematics.NAME]`",
+    "skims": "`[skims.NAME]`",
 }
 
 
@@ -254,7 +263,8 @@ def _record_known(monkeypatch: pytest.MonkeyPatch) -> dict[str, set[str]]:
     """Patch the reader's table class to record the keys it asks for, per generic table."""
     seen: dict[str, set[str]] = {}
     original = cfgmod._Table.done
-    users = {"samples", "objects", "composites", "histograms", "uncertainties"}
+    users = {"samples", "objects", "composites", "histograms", "uncertainties", "regions",
+             "systematics", "skims"}
 
     def done(self: Any) -> None:
         p = self.path

@@ -98,7 +98,10 @@ def test_csv_round_trip(tmp_path: Path) -> None:
     write_results(tmp_path, res)
     h = res.samples["dy toy"].histograms["mll"]
     cols = read_hist_csv(tmp_path / "csv" / "dy_toy" / "mll.csv")
-    assert list(cols) == ["lo", "hi", "value", "error", "scale_down", "scale_up"]
+    assert list(cols) == ["lo", "hi", "value", "error", "entries", "scale_down", "scale_up"]
+    assert np.array_equal(cols["entries"], h.counts)  # the raw fills per bin
+    assert h.counts is not None
+    assert h.counts.sum() == h.entries
     assert cols["lo"][0] == -np.inf
     assert cols["hi"][-1] == np.inf
     assert cols["lo"][1:].tolist() == [0.0, 1.0, 2.5, 5.0]

@@ -48,6 +48,9 @@ files = ["a0.lhe", "a1.lhe", "a2.lhe"]
 files = ["b0.lhe"]
 cross_section_pb = 7.5
 
+[objects.photons]
+particles = ["photons"]
+
 [[step]]
 name = "scale above 5"
 require = "scale > 5"
@@ -68,6 +71,27 @@ after = "scale above 5"
 [histograms.n]
 x = { value = "scale", bins = 3, range = [0.0, 60.0] }
 normalise = "events"
+
+[histograms.photon_pt]
+x = { value = "photons[0].pt", bins = 4, range = [0.0, 20.0] }
+normalise = "raw"
+regions = "all"
+
+[regions.low]
+require = "scale < 30"
+
+[systematics.pes]
+objects = "photons"
+kind = "energy_scale"
+shift = 0.5
+
+[uncertainties.pes]
+method = "updown"
+systematic = "pes"
+
+[uncertainties.scale]
+group = "scale_variation"
+method = "envelope"
 
 [output]
 formats = ["json", "cutflow", "csv"]
@@ -108,6 +132,8 @@ def test_two_parts_merge_to_the_single_run(setup) -> None:  # type: ignore[no-un
         gs = got.samples[s]
         _same(gs.xsec, fs.xsec)
         _same(gs.cutflow, fs.cutflow)
+        _same(gs.region_cutflows, fs.region_cutflows)
+        assert "photon_pt@low" in fs.histograms
         assert gs.variations == fs.variations
         for h, fh in fs.histograms.items():
             gh = gs.histograms[h]

@@ -190,6 +190,8 @@ FUNCTIONS: dict[str, tuple[int, int, str]] = {
     "max": (1, 8, "largest per event (one collection) or element-wise (several values)"),
     "count": (1, 1, "number of objects per event"),
     "sum": (1, 1, "sum over the objects of each event"),
+    "prod": (1, 1, "product over the objects of each event (1 for none)"),
+    "lookup": (2, 4, "the value of a binned table ([tables]) at one value per table axis"),
     "mass": (1, 1, "invariant mass"),
     "pt": (1, 1, "transverse momentum"),
     "eta": (1, 1, "pseudorapidity"),
@@ -364,6 +366,9 @@ class _Parser:
                     break
                 self.expect(",", "',' or ')'")
         lo, hi, _ = FUNCTIONS[name.value]
+        if name.value == "lookup" and args and args[0].kind != "name":
+            raise self.error("lookup() takes the name of a table first, e.g. "
+                             "lookup(muon_sf, muons.pt)", name)
         if not lo <= len(args) <= hi:
             want = str(lo) if lo == hi else f"{lo} to {hi}"
             raise self.error(
@@ -385,6 +390,9 @@ class Expression:
 
     text: str
     tree: Node
+    #: where the expression was written (``config.toml:12: step[0].require``), for errors
+    #: found while evaluating; set by the config reader
+    where: str = field(default="", compare=False)
 
     @property
     def names(self) -> dict[str, int]:
@@ -456,6 +464,8 @@ def _reduce(fn: str, value: Any, expr: Expression, pos: int) -> Any:
         raise expr.error(f"{fn}() of one argument needs a collection, e.g. {fn}(jets.pt)", pos)
     if fn == "sum":
         return ak.sum(value, axis=1)
+    if fn == "prod":
+        return ak.prod(value, axis=1)
     if fn == "min":
         return ak.min(value, axis=1)
     return ak.max(value, axis=1)
@@ -502,8 +512,19 @@ def _call(fn: str, values: list[Any], expr: Expression, pos: int) -> Any:
         if len(values) == 1:
             return _reduce(fn, values[0], expr, pos)
         return _elementwise(fn, values)
-    if fn == "sum":
+    if fn in ("sum", "prod"):
         return _reduce(fn, values[0], expr, pos)
+    if fn == "lookup":
+        table, args = values[0], values[1:]
+        if not callable(table) or not hasattr(table, "ndim"):
+            raise expr.error("lookup() needs a table declared under [tables] first", pos)
+        if len(args) != table.ndim:
+            raise expr.error(f"table {table.name!r} has {table.ndim} axes "
+                             f"({', '.join(table.axis_names)}); give one value for each", pos)
+        for a in args:
+            if _is_record(a):
+                raise expr.error("lookup() needs numbers (e.g. muons.pt), not objects", pos)
+        return table(*args)
     if fn == "count":
         v = values[0]
         if _ndim(v) < 2:

@@ -15,12 +15,13 @@ from pathlib import Path
 
 __all__ = ["atomic_path", "atomic_write_bytes", "atomic_write_text", "safe_name"]
 
-_SAFE = re.compile(r"[^A-Za-z0-9_.+-]")
+_SAFE = re.compile(r"[^A-Za-z0-9_.+@-]")
 
 
 def safe_name(name: str) -> str:
-    """A file-name part: characters outside ``[A-Za-z0-9_.+-]`` become ``_``; a name made only
-    of dots (``.``, ``..``), or empty, becomes ``_`` (it would name a folder)."""
+    """A file-name part: characters outside ``[A-Za-z0-9_.+@-]`` become ``_`` (``@`` joins a
+    histogram and its region); a name made only of dots (``.``, ``..``), or empty, becomes
+    ``_`` (it would name a folder)."""
     out = _SAFE.sub("_", name)
     return out if out.strip(".") else "_"
 

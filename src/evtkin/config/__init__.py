@@ -19,9 +19,17 @@ The vocabulary (see ``configs/*.toml`` for complete examples)::
     [histograms.NAME]     title, x = {value, bins, range | edges, label, unit}, y = {...},
                           normalise, after, samples, response
     [output]              directory, formats, plot_formats
-    [uncertainties.NAME]  method, group | ids, drop_anticorrelated, of, samples
+    [uncertainties.NAME]  method, group | ids, drop_anticorrelated, of, samples, systematic
                           (bands from variation weights; ``automatic = false`` turns off the
-                          default bands taken from the files' weight groups)
+                          default bands taken from the files' weight groups; ``updown``: the
+                          band of an object-level systematic)
+    [regions.NAME]        after, require | steps = [{name, require}, ...]
+    [tables]              NAME = "file.toml" (binned tables for lookup(NAME, ...))
+    [systematics.NAME]    objects, kind = "energy_scale" | "smearing" | "efficiency",
+                          shift | resolution | drop, seed
+    [skims.NAME]          after | region, columns = {NAME = "expression"}, formats, samples,
+                          variation_weights
+    ([analysis] and [samples.NAME] also take weight = "expression": the event weight factor)
 
 Every error names the config file, the 1-based line of the offending key (TOML parsers do
 not report lines, so :class:`KeyLines` finds them by scanning the text), the dotted key path,
@@ -49,6 +57,8 @@ from evtkin.config.schema import (
     PARTICLE_CLASSES,
     PLOT_FORMATS,
     SAMPLE_FORMATS,
+    SKIM_FORMATS,
+    SYSTEMATIC_KINDS,
     UNCERTAINTY_METHODS,
     AnalysisConfig,
     AxisDef,
@@ -58,8 +68,11 @@ from evtkin.config.schema import (
     ObjectSpec,
     OutputSpec,
     OverlapSpec,
+    RegionSpec,
     SampleSpec,
+    SkimSpec,
     StepSpec,
+    SystematicSpec,
     UncertaintySpec,
 )
 from evtkin.config.tables import _Table as _Table
@@ -74,6 +87,8 @@ __all__ = [
     "PARTICLE_CLASSES",
     "PLOT_FORMATS",
     "SAMPLE_FORMATS",
+    "SKIM_FORMATS",
+    "SYSTEMATIC_KINDS",
     "UNCERTAINTY_METHODS",
     "AnalysisConfig",
     "AxisDef",
@@ -84,8 +99,11 @@ __all__ = [
     "ObjectSpec",
     "OutputSpec",
     "OverlapSpec",
+    "RegionSpec",
     "SampleSpec",
+    "SkimSpec",
     "StepSpec",
+    "SystematicSpec",
     "UncertaintySpec",
     "load_config",
 ]

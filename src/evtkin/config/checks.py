@@ -41,6 +41,20 @@ def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
             _check_met(ctx, cfg, ("composites", name, "missing_pt"), c.inputs[2])
     for i, step in enumerate(cfg.steps):
         _check_expression_names(ctx, ("step", i, "require"), step.require, known)
+    for rname, region in cfg.regions.items():
+        for i, step in enumerate(region.steps):
+            path: Path_ = (("regions", rname, "steps", i, "require")
+                           if step.name != rname or len(region.steps) > 1
+                           else ("regions", rname, "require"))
+            _check_expression_names(ctx, path, step.require, known)
+    if cfg.weight is not None:
+        _check_expression_names(ctx, ("analysis", "weight"), cfg.weight, known)
+    for sname, spec in cfg.samples.items():
+        if spec.weight is not None:
+            _check_expression_names(ctx, ("samples", sname, "weight"), spec.weight, known)
+    for kname, skim in cfg.skims.items():
+        for col, e in skim.columns.items():
+            _check_expression_names(ctx, ("skims", kname, "columns", col), e, known)
     for name, q in cfg.quantities.items():
         if name in cfg.objects or name in cfg.composites or name in EVENT_FIELDS:
             raise ctx.error(("quantities", name), f"{name!r} is already defined elsewhere")

@@ -15,9 +15,13 @@ from evtkin.config.read_composites import _read_composites
 from evtkin.config.read_histograms import _read_histograms
 from evtkin.config.read_objects import _read_classes, _read_missing, _read_objects, _read_overlap
 from evtkin.config.read_output import _read_output
+from evtkin.config.read_regions import _read_regions
 from evtkin.config.read_samples import _read_samples
+from evtkin.config.read_skims import _read_skims
 from evtkin.config.read_steps import _read_quantities, _read_steps
+from evtkin.config.read_systematics import _read_systematics
 from evtkin.config.read_uncertainties import _read_uncertainties
+from evtkin.config.read_weights import _read_tables
 from evtkin.config.schema import AnalysisConfig
 from evtkin.config.tables import _Ctx, _Table
 from evtkin.errors import ConfigError
@@ -28,7 +32,8 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 _TOP = ("analysis", "classes", "samples", "objects", "overlap_removal", "missing_pt", "step",
-        "composites", "quantities", "histograms", "output", "uncertainties")
+        "composites", "quantities", "histograms", "output", "uncertainties", "regions",
+        "tables", "systematics", "skims")
 
 
 
@@ -76,18 +81,25 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
     note = a.string("note", None)
     lumi = a.number("luminosity_fb", None, positive=True)
     step_size = a.integer("step_size", None, positive=True)
+    weight = a.expression("weight") if a.has("weight") else None
+    a.known.append("weight")
     a.done()
+    warnings: list[str] = []
     classes = _read_classes(top)
-    samples = _read_samples(top, base, lumi)
+    samples = _read_samples(top, base, lumi, warnings)
     objects = _read_objects(top, classes)
     overlap = _read_overlap(top, objects)
     missing = _read_missing(top, classes)
     steps = _read_steps(top)
+    regions = _read_regions(top, steps)
     composites = _read_composites(top)
     quantities = _read_quantities(top)
-    histograms = _read_histograms(top, steps, samples)
+    histograms = _read_histograms(top, steps, samples, regions)
     output = _read_output(top, base)
-    uncertainties, automatic = _read_uncertainties(top, samples)
+    systematics = _read_systematics(top, objects)
+    uncertainties, automatic = _read_uncertainties(top, samples, systematics)
+    tables = _read_tables(top, base)
+    skims = _read_skims(top, steps, regions, samples)
     for k in _TOP:
         top.known.append(k)
     top.done()
@@ -120,6 +132,12 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
         classes=classes,
         uncertainties=uncertainties,
         uncertainties_automatic=automatic,
+        weight=weight,
+        tables=tables,
+        regions=regions,
+        systematics=systematics,
+        skims=skims,
+        warnings=tuple(warnings),
     )
     _check_names(ctx, cfg)
     _check_ntuple_names(ctx, cfg)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import itertools
 from collections.abc import Mapping
+from typing import Any
 
 from evtkin.config.schema import NORMALISATIONS, AxisDef, HistogramSpec, SampleSpec, StepSpec
 from evtkin.config.tables import _check_name, _pair, _Table
@@ -34,7 +35,8 @@ def _edges(a: _Table) -> tuple[tuple[float, ...], bool]:
 
 
 def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
-                     samples: Mapping[str, SampleSpec]) -> dict[str, HistogramSpec]:
+                     samples: Mapping[str, SampleSpec],
+                     regions: Mapping[str, Any] | None = None) -> dict[str, HistogramSpec]:
     t = top.table("histograms")
     out: dict[str, HistogramSpec] = {}
     if t is None:
@@ -60,6 +62,24 @@ def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
         if only is not None:
             for i, s in enumerate(only):
                 _check_name(h.ctx, (*h.path, "samples", i), s, samples, "sample")
+        in_regions: tuple[str, ...] = h.strings("regions", ())
+        known_regions = list(regions or {})
+        if in_regions == ("all",) and "all" not in known_regions:
+            if not known_regions:
+                raise h.ctx.error((*h.path, "regions"), "the config declares no [regions]")
+            in_regions = tuple(known_regions)
+        listed = isinstance(h.data.get("regions"), list)
+        for i, r in enumerate(in_regions):
+            _check_name(h.ctx, (*h.path, "regions", *((i,) if listed else ())), r,
+                        known_regions, "region")
+        if in_regions and after is not None:
+            raise h.ctx.error((*h.path, "after"), "a histogram in regions is filled after each "
+                              "region's steps: give after or regions, not both")
+        if in_regions and h.data.get("response") is True:
+            raise h.ctx.error((*h.path, "response"), "response matrices are made for the "
+                              "common selection: not together with regions")
+        if len(set(in_regions)) != len(in_regions):
+            raise h.ctx.error((*h.path, "regions"), "a region is listed twice")
         out[name] = HistogramSpec(
             name=name,
             title=h.string("title", name),
@@ -68,6 +88,7 @@ def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
             after=after,
             samples=only,
             response=h.boolean("response", False),
+            regions=in_regions,
         )
         h.done()
     t.done()

@@ -9,8 +9,50 @@ from evtkin.config.schema import SAMPLE_FORMATS, SampleSpec
 from evtkin.config.tables import _fmt_path, _Table
 from evtkin.errors import ConfigError
 
+#: what a folder given in ``files`` contributes: its files with these endings, by format
+_FOLDER_SUFFIXES = {"lhe": (".lhe", ".lhe.gz", ".lhe.zst", ".lhe.bz2", ".lhe.xz", ".lhef"),
+                    "root": (".root",)}
+_GLOB = set("*?[")
 
-def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, SampleSpec]:
+
+def _expand_files(s: _Table, files: tuple[str, ...], fmt: str, base: Path,
+                  warnings: list[str]) -> tuple[Path, ...]:
+    """``files`` entries → paths: a glob pattern gives its matches (sorted), a folder its
+    files of the sample's format (sorted); a file listed twice is read once, with a warning."""
+    out: list[Path] = []
+    where: dict[Path, int] = {}
+    for i, f in enumerate(files):
+        path = Path(f) if Path(f).is_absolute() else base / f
+        key = (*s.path, "files", i) if len(files) > 1 else (*s.path, "files")
+        if _GLOB & set(f):
+            anchor = Path(path.anchor) if path.is_absolute() else base
+            pattern = str(path.relative_to(anchor)) if path.is_absolute() else f
+            found = sorted(p for p in anchor.glob(pattern) if p.is_file())
+            if not found:
+                raise s.ctx.error(key, f"the pattern {f!r} matches no file (in {anchor})")
+        elif path.is_dir():
+            found = sorted(p for p in path.iterdir()
+                           if p.is_file() and p.name.lower().endswith(_FOLDER_SUFFIXES[fmt]))
+            if not found:
+                raise s.ctx.error(key, f"the folder {path} holds no "
+                                  f"{' / '.join(_FOLDER_SUFFIXES[fmt])} files")
+        else:
+            found = [path]
+        for p in found:
+            ident = p.resolve() if p.exists() else p
+            if ident in where:
+                warnings.append(f"{_fmt_path(key)}: {p} is listed twice (also by entry "
+                                f"{where[ident]} of files); it is read once")
+                continue
+            where[ident] = i
+            out.append(p)
+    return tuple(out)
+
+
+def _read_samples(top: _Table, base: Path, lumi: float | None,
+                  warnings: list[str] | None = None) -> dict[str, SampleSpec]:
+    if warnings is None:
+        warnings = []
     t = top.table("samples", required=True)
     assert t is not None
     if not t.data:
@@ -24,14 +66,17 @@ def _read_samples(top: _Table, base: Path, lumi: float | None) -> dict[str, Samp
             raise s.ctx.error((*s.path, "files"), "expected at least one file")
         fmt = s.string("format", "lhe", choices=SAMPLE_FORMATS)
         ntuple = _read_ntuple_sample(s, fmt, base)
+        weight = s.expression("weight") if s.has("weight") else None
+        s.known.append("weight")
         out[name] = SampleSpec(
             name=name,
-            files=tuple((base / f) if not Path(f).is_absolute() else Path(f) for f in files),
+            files=_expand_files(s, files, fmt, base, warnings),
             label=s.string("label", name),
             cross_section_pb=s.number("cross_section_pb", None, positive=True),
             luminosity_fb=s.number("luminosity_fb", lumi, positive=True),
             toy=s.boolean("toy", False),
             format=fmt,
+            weight=weight,
             **ntuple,
         )
         s.done()

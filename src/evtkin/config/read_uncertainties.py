@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
+from typing import Any
 
 from evtkin.config.schema import UNCERTAINTY_METHODS, SampleSpec, UncertaintySpec
 from evtkin.config.tables import _check_name, _kind, _Table
 
 
-def _read_uncertainties(top: _Table, samples: Mapping[str, SampleSpec]
+def _read_uncertainties(top: _Table, samples: Mapping[str, SampleSpec],
+                        systematics: Mapping[str, Any] | None = None,
                         ) -> tuple[tuple[UncertaintySpec, ...], bool]:
     """``[uncertainties]``: ``automatic = bool`` and one sub-table per recipe (see
     :mod:`evtkin.hists.recipes` for the meaning; names are checked against the files there)."""
@@ -36,7 +38,20 @@ def _read_uncertainties(top: _Table, samples: Mapping[str, SampleSpec]
                                   f"whole numbers), got {_kind(ids_raw)}")
             ids = tuple(str(x) for x in ids_raw)
         of = u.strings("of", ())
-        if method == "quadrature":
+        systematic = u.string("systematic", None)
+        if method == "updown":
+            if group is not None or ids or of:
+                key = "group" if group is not None else ("ids" if ids else "of")
+                raise u.ctx.error((*u.path, key), "an updown band comes from an object-level "
+                                  "systematic: give systematic = \"NAME\" only")
+            if systematic is None:
+                u._missing("systematic", " for method = 'updown' (a [systematics] name)")
+            assert systematic is not None
+            _check_name(u.ctx, (*u.path, "systematic"), systematic, systematics or {},
+                        "object-level systematic ([systematics])")
+        elif systematic is not None:
+            raise u.ctx.error((*u.path, "systematic"), "only method = 'updown' takes systematic")
+        elif method == "quadrature":
             if group is not None or ids:
                 raise u.ctx.error((*u.path, "group" if group is not None else "ids"),
                                   "a quadrature combines other recipes: give of = [...] only")
@@ -59,7 +74,8 @@ def _read_uncertainties(top: _Table, samples: Mapping[str, SampleSpec]
             for i, s in enumerate(only):
                 _check_name(u.ctx, (*u.path, "samples", i), s, samples, "sample")
         u.done()
-        out.append(UncertaintySpec(name, method, group, ids, drop, tuple(of), only, at))
+        out.append(UncertaintySpec(name, method, group, ids, drop, tuple(of), only, at,
+                                   systematic))
     automatic = t.boolean("automatic", not out)
     t.done()
     return tuple(out), automatic

@@ -39,7 +39,11 @@ DEFAULT_W_MASS = 80.3692
 DEFAULT_TOP_MASS = 172.57
 
 UNCERTAINTY_METHODS = ("envelope", "replicas_std", "replicas_68", "hessian_symmetric",
-                       "hessian_asymmetric", "quadrature")
+                       "hessian_asymmetric", "quadrature", "updown")
+
+#: object-level systematic kinds (``[systematics.NAME] kind``) and their size key
+SYSTEMATIC_KINDS = {"energy_scale": "shift", "smearing": "resolution", "efficiency": "drop"}
+SKIM_FORMATS = ("parquet", "root")
 
 
 @dataclass(frozen=True)
@@ -60,6 +64,9 @@ class SampleSpec:
     #: generator-level (LHE) files with the same events, matched by the ntuple's event number
     #: (0-based position in the LHE file): the truth level of response matrices
     truth_files: tuple[Path, ...] = ()
+    #: an event-weight expression of this sample, multiplying the generator weight (and the
+    #: analysis' ``weight``)
+    weight: Expression | None = None
 
 
 @dataclass(frozen=True)
@@ -109,6 +116,51 @@ class StepSpec:
 
 
 @dataclass(frozen=True)
+class RegionSpec:
+    """A named selection branching off the common steps after the step ``after`` (default:
+    all of them) with its own ordered ``steps``."""
+
+    name: str
+    after: str | None
+    steps: tuple[StepSpec, ...]
+
+
+@dataclass(frozen=True)
+class SystematicSpec:
+    """An object-level variation of the collections ``objects`` (see
+    :mod:`evtkin.select.variations`; an object seen by several collections, e.g. a jet in
+    ``jets`` and ``bjets``, is varied alike in all): ``kind`` is a key of
+    :data:`SYSTEMATIC_KINDS`, ``size`` the shift, resolution or drop probability, ``seed`` for
+    the random kinds."""
+
+    name: str
+    objects: tuple[str, ...]
+    kind: str
+    size: float
+    seed: int = 0
+
+    @property
+    def variations(self) -> tuple[str, ...]:
+        """The varied runs: ``NAME_up``, ``NAME_down`` for a scale shift, ``NAME`` else."""
+        if self.kind == "energy_scale":
+            return (f"{self.name}_up", f"{self.name}_down")
+        return (self.name,)
+
+
+@dataclass(frozen=True)
+class SkimSpec:
+    """An event table: the ``columns`` of the events passing ``after`` or ``region``."""
+
+    name: str
+    columns: Mapping[str, Expression]
+    after: str | None = None
+    region: str | None = None
+    formats: tuple[str, ...] = SKIM_FORMATS
+    samples: tuple[str, ...] | None = None
+    variation_weights: bool = True
+
+
+@dataclass(frozen=True)
 class CompositeSpec:
     """A composite object; ``options`` hold the build-specific, validated settings."""
 
@@ -137,6 +189,9 @@ class HistogramSpec:
     samples: tuple[str, ...] | None = None
     #: fill a truth × reconstructed response matrix (samples with ``truth_files``)
     response: bool = False
+    #: the regions to fill it in (each gives its own histogram ``NAME@REGION``); empty: the
+    #: common selection only
+    regions: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -159,6 +214,8 @@ class UncertaintySpec:
     of: tuple[str, ...] = ()
     samples: tuple[str, ...] | None = None
     lines: Mapping[str, int | None] = field(default_factory=dict)
+    #: ``updown``: the object-level systematic (``[systematics.NAME]``) the band comes from
+    systematic: str | None = None
 
 
 @dataclass(frozen=True)
@@ -187,6 +244,18 @@ class AnalysisConfig:
     uncertainties: tuple[UncertaintySpec, ...] = ()
     #: bands from the files' ``<weightgroup combine=...>`` (default: only if no recipe is given)
     uncertainties_automatic: bool = True
+    #: an event-weight expression for every sample, multiplying the generator weight
+    weight: Expression | None = None
+    #: ``[tables]``: binned lookup tables by name (:class:`evtkin.select.lookup.BinnedTable`)
+    tables: Mapping[str, Any] = field(default_factory=dict)
+    #: ``[regions.NAME]``, in the order written
+    regions: dict[str, RegionSpec] = field(default_factory=dict)
+    #: ``[systematics.NAME]``, in the order written
+    systematics: dict[str, SystematicSpec] = field(default_factory=dict)
+    #: ``[skims.NAME]``, in the order written
+    skims: dict[str, SkimSpec] = field(default_factory=dict)
+    #: what loading noticed but did not refuse (e.g. a file listed twice)
+    warnings: tuple[str, ...] = ()
 
     def names(self) -> dict[str, str]:
         """Every name an expression may use → what it is."""
@@ -196,4 +265,8 @@ class AnalysisConfig:
             out[self.missing_pt.name] = "missing transverse momentum"
         out.update({k: "composite" for k in self.composites})
         out.update({k: "quantity" for k in self.quantities})
+        out.update({k: "table" for k in self.tables})
+        for spec in self.samples.values():
+            if spec.input is not None:
+                out.update({k: "ntuple scalar" for k in spec.input.scalars})
         return out

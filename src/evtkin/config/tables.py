@@ -3,6 +3,7 @@ spelling suggestions, and rejects keys nobody asked for."""
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 from collections.abc import Iterable, Mapping
 from typing import Any
@@ -39,9 +40,12 @@ class _Ctx:
         if not isinstance(text, str):
             raise self.error(path, f"expected an expression in quotes, got {_kind(text)}")
         try:
-            return parse(text)
+            parsed = parse(text)
         except ExpressionError as exc:
             raise self._expr_error(path, exc) from None
+        line = self.lines.line(path) if self.lines is not None else None
+        at = f"{self.source}:{line}" if line is not None else self.source
+        return dataclasses.replace(parsed, where=f"{at}: {_fmt_path(path)}")
 
     def _expr_error(self, path: Path_, exc: ExpressionError) -> ConfigError:
         line = self.lines.line(path) if self.lines is not None else None

@@ -448,6 +448,9 @@ class HistAccumulator:
     entries: int = 0
     _w: np.ndarray = field(default=None, repr=False)  # type: ignore[arg-type]
     _w2: np.ndarray = field(default=None, repr=False)  # type: ignore[arg-type]
+    #: the raw number of entries per flow-inclusive bin (int64, ``spec.shape``): one per fill,
+    #: whatever its weight
+    counts: np.ndarray = field(default=None, repr=False)  # type: ignore[arg-type]
 
     def __post_init__(self) -> None:
         self.variations = tuple(str(v) for v in self.variations)
@@ -456,8 +459,12 @@ class HistAccumulator:
             self._w = np.zeros(shape, dtype=np.float64)
         if self._w2 is None:
             self._w2 = np.zeros(shape, dtype=np.float64)
+        if self.counts is None:
+            self.counts = np.zeros(self.spec.shape, dtype=np.int64)
         if self._w.shape != shape or self._w2.shape != shape:
             raise ValueError(f"histogram {self.spec.name!r}: contents shape != {shape}")
+        if self.counts.shape != tuple(self.spec.shape):
+            raise ValueError(f"histogram {self.spec.name!r}: counts shape != {self.spec.shape}")
 
     # ---- contents -------------------------------------------------------------------------------
     @property
@@ -523,13 +530,14 @@ class HistAccumulator:
         self._check_compatible(other)
         return HistAccumulator(
             self.spec, self.variations, self.entries + other.entries,
-            self._w + other._w, self._w2 + other._w2,
+            self._w + other._w, self._w2 + other._w2, self.counts + other.counts,
         )
 
     def __iadd__(self, other: HistAccumulator) -> HistAccumulator:
         self._check_compatible(other)
         self._w += other._w
         self._w2 += other._w2
+        self.counts += other.counts
         self.entries += other.entries
         return self
 
@@ -539,8 +547,9 @@ class HistAccumulator:
         return self.__add__(other)
 
     def add_scaled(self, other: HistAccumulator, factor: float) -> HistAccumulator:
-        """Add ``other`` × ``factor`` in place (Σw × factor, Σw² × factor², entries added): the
-        merge of per-file parts with their cross-section factors known after the pass.
+        """Add ``other`` × ``factor`` in place (Σw × factor, Σw² × factor², entries and the raw
+        counts per bin added unscaled): the merge of per-file parts with their cross-section
+        factors known after the pass.
         ``other`` must have the same spec and number of variations; returns ``self``."""
         if not isinstance(other, HistAccumulator):
             raise TypeError(f"cannot add {type(other).__name__} to HistAccumulator")
@@ -549,6 +558,7 @@ class HistAccumulator:
         f = float(factor)
         self._w += f * other._w
         self._w2 += (f * f) * other._w2
+        self.counts += other.counts
         self.entries += other.entries
         return self
 
@@ -556,11 +566,12 @@ class HistAccumulator:
         """Contents × factor (Σw² × factor²): e.g. a cross-section factor known after the pass."""
         f = float(factor)
         return HistAccumulator(self.spec, self.variations, self.entries, self._w * f,
-                               self._w2 * (f * f))
+                               self._w2 * (f * f), self.counts.copy())
 
     def copy(self) -> HistAccumulator:
         return HistAccumulator(
-            self.spec, self.variations, self.entries, self._w.copy(), self._w2.copy()
+            self.spec, self.variations, self.entries, self._w.copy(), self._w2.copy(),
+            self.counts.copy(),
         )
 
     def empty_like(self) -> HistAccumulator:
@@ -718,10 +729,12 @@ def fill_many(
     m = 1 + nv
     buf = _aligned_zeros((offset, _row_width(nv)))
     _accumulate(gidx, grows, rowflag, starts, w0, wv, buf)
+    counts = np.bincount(gidx, minlength=offset)
     for h, (acc, _x, _r) in enumerate(prepared):
         sl = slice(offsets[h], offsets[h] + acc.spec.size)
         acc._w += buf[sl, :m].reshape(acc._w.shape)
         acc._w2 += buf[sl, m : 2 * m].reshape(acc._w2.shape)
+        acc.counts += counts[sl].reshape(acc.counts.shape)
         acc.entries += sizes[h]
 
 
@@ -765,4 +778,5 @@ def _fill_grouped(
     )
     acc._w += buf[:, :m].reshape(acc._w.shape)
     acc._w2 += buf[:, m : 2 * m].reshape(acc._w2.shape)
+    acc.counts += np.bincount(idx, minlength=acc.spec.size).reshape(acc.counts.shape)
     acc.entries += idx.size

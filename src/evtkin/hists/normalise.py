@@ -103,7 +103,17 @@ def normalise(
     weights_in_pb: bool = True,
 ) -> HistRecord:
     """Normalise an accumulator (all weights at once) into a :class:`HistRecord` (``rows``:
-    every weight, ``values``: the nominal); see the module docstring for the modes."""
+    every weight, ``values``: the nominal); see the module docstring for the modes. The raw
+    entry counts per bin go along unchanged."""
+    out = _normalise(acc, mode, luminosity_fb=luminosity_fb, include_flow=include_flow,
+                     weights_in_pb=weights_in_pb)
+    counts = getattr(acc, "counts", None)
+    out.counts = None if counts is None else np.array(counts, dtype=np.int64)
+    return out
+
+
+def _normalise(acc: HistAccumulator, mode: Mode | str, *, luminosity_fb: float | None,
+               include_flow: bool, weights_in_pb: bool) -> HistRecord:
     spec = acc.spec
     w = np.array(acc.sumw, dtype=np.float64)
     w2 = np.array(acc.sumw2, dtype=np.float64)

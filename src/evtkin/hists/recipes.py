@@ -27,8 +27,16 @@ or id (``muR=2 muF=0.5``, ``MUR=0.5_MUF=1.0``, ``mur="2" muf="1"``); members out
 {0.5, 1, 2}² and the two anti-correlated points are left out. A member whose factors cannot be read
 is a :class:`~evtkin.errors.ConfigError`.
 
+``updown`` takes the band of an object-level systematic (``systematic = "NAME"``, a
+``[systematics.NAME]`` variation of an object collection whose selection, composites and
+histograms are re-run in the same pass): for an up/down pair the band is
+nominal + max(X_up − X_0, X_down − X_0, 0) upwards and nominal − max(X_0 − X_up, X_0 − X_down,
+0) downwards (the asymmetric formula of one ± pair); a one-sided variation (smearing,
+efficiency) is symmetrised, X_0 ± |X_var − X_0| (common practice). It combines in
+``quadrature`` with the weight-based bands like any other recipe.
+
 A recipe applies to the samples listed in its ``samples`` key, by default to every LHE sample
-(ntuple samples carry no variation weights).
+(ntuple samples carry no variation weights); an ``updown`` recipe by default to every sample.
 
 **Default** (no recipe in the config, or ``automatic = true``): one band per weight group whose
 ``combine`` attribute is recognised — ``envelope`` (7-point when every member's factors can be
@@ -80,6 +88,7 @@ _BAND_METHOD = {
     "hessian_symmetric": "hessian_sym",
     "hessian_asymmetric": "hessian_asym",
     "quadrature": "quadrature",
+    "updown": "updown",
 }
 
 
@@ -168,10 +177,18 @@ def resolve_recipes(
     out: list[Recipe] = []
     spec = getattr(cfg, "samples", {}).get(sample)
     is_lhe = getattr(spec, "format", "lhe") == "lhe"
-    specs = [u for u in getattr(cfg, "uncertainties", ())
-             if (u.samples is None and is_lhe) or (u.samples is not None and sample in u.samples)]
+    every = getattr(cfg, "uncertainties", ())
+    updown = {u.name for u in every if u.method == "updown"}
+    specs = [u for u in every
+             if (u.samples is None and (is_lhe or u.method == "updown"
+                                        or (u.method == "quadrature" and updown & set(u.of))))
+             or (u.samples is not None and sample in u.samples)]
     for u in specs:
         key = f"uncertainties.{u.name}"
+        if u.method == "updown":
+            sys_spec = cfg.systematics[u.systematic]
+            out.append(Recipe(u.name, "updown", members=tuple(sys_spec.variations)))
+            continue
         if u.method == "quadrature":
             have = {r.name for r in out}
             of = tuple(o for o in u.of if o in have)
@@ -274,13 +291,22 @@ def _automatic(fw: _FileWeights, column: Mapping[str, int], taken: set[str], sam
     return out
 
 
-def bands_for(values: np.ndarray, recipes: Sequence[Recipe]) -> dict[str, bandlib.Band]:
+def bands_for(values: np.ndarray, recipes: Sequence[Recipe],
+              shifted: Mapping[str, np.ndarray] | None = None) -> dict[str, bandlib.Band]:
     """Bands of one normalised histogram: ``values`` has shape ``(1 + V, *shape)`` (index 0 =
-    nominal, column ``c`` of a recipe is ``values[1 + c]``)."""
+    nominal, column ``c`` of a recipe is ``values[1 + c]``); ``shifted`` holds the nominal
+    contents of the same histogram in each object-level variation (``updown`` recipes)."""
     x0 = values[0]
     out: dict[str, bandlib.Band] = {}
     for r in recipes:
-        if r.method == "quadrature":
+        if r.method == "updown":
+            if shifted is None or not all(m in shifted for m in r.members):
+                continue
+            xs = np.stack([shifted[m] for m in r.members])
+            b = (bandlib.hessian_asymmetric(x0, xs, list(r.members)) if len(r.members) == 2
+                 else bandlib.hessian_symmetric(x0, xs, list(r.members)))
+            b.method = "updown"
+        elif r.method == "quadrature":
             parts = [out[o] for o in r.of if o in out]
             b = bandlib.quadrature(x0, parts, list(r.of))
         else:

@@ -13,7 +13,9 @@ normalisation's stored quantity (dσ/dX per bin for ``xsec_per_bin`` with the fl
   the bands are formed from them; ``None`` for a record read back from a file;
 * ``bands``/``shape_bands``: uncertainty bands (:class:`evtkin.hists.bands.Band`) of the
   contents and of the unit-area shape;
-* ``variation_values``: every variation's values when they are to be written (else ``None``).
+* ``variation_values``: every variation's values when they are to be written (else ``None``);
+* ``counts``: the raw number of fills per stored bin (unweighted); ``region``: the region a
+  ``<histogram>@<region>`` record was filled in.
 """
 
 from __future__ import annotations
@@ -99,6 +101,10 @@ class HistRecord:
     #: in memory: the contents of the nominal weight and every variation, ``(1 + V, *shape)``
     rows: np.ndarray | None = field(default=None, repr=False)
     row_variances: np.ndarray | None = field(default=None, repr=False)
+    #: the region the histogram was filled in (its name is then ``<histogram>@<region>``)
+    region: str | None = None
+    #: the raw number of entries per stored bin (one per fill, unweighted, not normalised)
+    counts: np.ndarray | None = None
 
     @classmethod
     def from_rows(cls, spec: HistSpec, variations: tuple[str, ...], rows: np.ndarray,
@@ -171,6 +177,9 @@ class HistRecord:
             "shape_bands": {k: {"method": b.method, "members": list(b.members),
                                 "down": _jlist(b.down), "up": _jlist(b.up)}
                             for k, b in self.shape_bands.items()},
+            **({"region": self.region} if self.region is not None else {}),
+            **({"counts": np.asarray(self.counts, dtype=np.int64).tolist()}
+               if self.counts is not None else {}),
         }
 
 

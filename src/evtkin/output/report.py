@@ -304,25 +304,28 @@ def render_run_report(
 
     body.append('<h2 id="cutflow">Cutflow</h2>')
     for name, s in samples.items():
-        if not s.cutflow:
-            continue
-        body.append(f"<h3>{_e(s.label or name)}</h3>")
-        body.append(
-            _table(
-                ["step", "events (raw)", "Σw", "√Σw²", "eff. step", "eff. cumulative"],
-                [
+        flows = [(s.label or name, s.cutflow)] if s.cutflow else []
+        flows += [(f"{s.label or name}: region {r}", rows)
+                  for r, rows in getattr(s, "region_cutflows", {}).items()]
+        for heading, rows in flows:
+            body.append(f"<h3>{_e(heading)}</h3>")
+            body.append(
+                _table(
+                    ["step", "events (raw)", "Σw", "√Σw²", "eff. step", "eff. cumulative"],
                     [
-                        _e(c.get("step", "")),
-                        _num(c.get("n_raw")),
-                        _num(c.get("sum_w")),
-                        _num(None if c.get("sum_w2") is None else float(c["sum_w2"]) ** 0.5),
-                        _num(c.get("eff_step")),
-                        _num(c.get("eff_cum")),
-                    ]
-                    for c in s.cutflow
-                ],
+                        [
+                            _e(c.get("step", "")),
+                            _num(c.get("n_raw")),
+                            _num(c.get("sum_w")),
+                            _num(None if c.get("sum_w2") is None
+                                 else float(c["sum_w2"]) ** 0.5),
+                            _num(c.get("eff_step")),
+                            _num(c.get("eff_cum")),
+                        ]
+                        for c in rows
+                    ],
+                )
             )
-        )
 
     body.append('<h2 id="histograms">Histograms</h2>')
     names: list[str] = []

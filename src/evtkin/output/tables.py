@@ -63,6 +63,8 @@ class SampleResult:
     variations: list[str] = field(default_factory=list)
     histograms: dict[str, HistResult] = field(default_factory=dict)
     cutflow: list[dict[str, Any]] = field(default_factory=list)
+    #: per region: its cutflow (the common steps up to where it branches off, then its own)
+    region_cutflows: dict[str, list[dict[str, Any]]] = field(default_factory=dict)
 
 
 @dataclass
@@ -160,21 +162,26 @@ def write_hist_csv(path: str | os.PathLike[str], h: HistResult, sample: str = ""
     bands = list(h.bands)
     band_cols = [c for b in bands for c in (f"{b}_down", f"{b}_up")]
     err = h.errors()
+    counts = h.counts
+    entries_col = ["entries"] if counts is not None else []
     if h.ndim == 1:
         lo, hi = _flow_edges(h.axes[0].edges)
-        w.writerow(["lo", "hi", "value", "error", *band_cols])
+        w.writerow(["lo", "hi", "value", "error", *entries_col, *band_cols])
         for k in range(h.values.size):
             extra = [v for b in bands for v in (h.bands[b].down[k], h.bands[b].up[k])]
-            w.writerow([_fmt(x) for x in (lo[k], hi[k], h.values[k], err[k], *extra)])
+            n = [str(int(counts[k]))] if counts is not None else []
+            w.writerow([*(_fmt(x) for x in (lo[k], hi[k], h.values[k], err[k])), *n,
+                        *(_fmt(x) for x in extra)])
     else:
         xlo, xhi = _flow_edges(h.axes[0].edges)
         ylo, yhi = _flow_edges(h.axes[1].edges)
-        w.writerow(["x_lo", "x_hi", "y_lo", "y_hi", "value", "error", *band_cols])
+        w.writerow(["x_lo", "x_hi", "y_lo", "y_hi", "value", "error", *entries_col, *band_cols])
         for i in range(h.values.shape[0]):
             for j in range(h.values.shape[1]):
                 extra = [v for b in bands for v in (h.bands[b].down[i, j], h.bands[b].up[i, j])]
-                w.writerow([_fmt(x) for x in (xlo[i], xhi[i], ylo[j], yhi[j], h.values[i, j],
-                                              err[i, j], *extra)])
+                n = [str(int(counts[i, j]))] if counts is not None else []
+                w.writerow([*(_fmt(x) for x in (xlo[i], xhi[i], ylo[j], yhi[j], h.values[i, j],
+                                                err[i, j])), *n, *(_fmt(x) for x in extra)])
     return atomic_write_text(path, buf.getvalue())
 
 
@@ -239,9 +246,10 @@ def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "") -> str:
 
 
 def write_cutflow(
-    folder: str | os.PathLike[str], sample: str, steps: Sequence[Mapping[str, Any]]
+    folder: str | os.PathLike[str], sample: str, steps: Sequence[Mapping[str, Any]],
+    title: str | None = None,
 ) -> tuple[Path, Path]:
-    """``cutflow/<sample>.txt`` and ``.csv``."""
+    """``cutflow/<sample>.txt`` and ``.csv`` (a region's: ``<sample>@<region>``)."""
     d = Path(folder) / "cutflow"
     rows = _cutflow_rows(steps)
     buf = io.StringIO()
@@ -250,7 +258,8 @@ def write_cutflow(
     for r in rows:
         w.writerow([r["step"], r["n_raw"], _fmt(r["sum_w"]), _fmt(r["sum_w2"]),
                     _fmt(r["eff_step"]), _fmt(r["eff_cum"])])
-    t = atomic_write_text(d / f"{safe_name(sample)}.txt", cutflow_text(steps, f"sample {sample}"))
+    t = atomic_write_text(d / f"{safe_name(sample)}.txt",
+                          cutflow_text(steps, title or f"sample {sample}"))
     c = atomic_write_text(d / f"{safe_name(sample)}.csv", buf.getvalue())
     return t, c
 
@@ -279,6 +288,9 @@ def results_to_dict(results: Results) -> dict[str, Any]:
             "histograms": {k: h.to_dict() for k, h in s.histograms.items()},
             "cutflow": _cutflow_rows(s.cutflow) if s.cutflow else [],
         }
+        if s.region_cutflows:
+            out["samples"][name]["region_cutflows"] = {
+                r: _cutflow_rows(rows) for r, rows in s.region_cutflows.items()}
     return out
 
 
@@ -295,6 +307,9 @@ def write_results(
                 write_hist_csv(target, h, sname)
         if s.cutflow:
             write_cutflow(root, sname, s.cutflow)
+        for region, rows in s.region_cutflows.items():
+            write_cutflow(root, f"{sname}@{region}", rows,
+                          title=f"sample {sname}, region {region}")
     return write_json(root / RESULTS_JSON, results_to_dict(results))
 
 
@@ -329,6 +344,8 @@ def _read_hist(name: str, d: Mapping[str, Any], where: str) -> HistResult:
         variation_values=None if vv is None else {
             k: _arr(v, f"{where}.variation_values.{k}") for k, v in vv.items()},
         shape_bands=shape_bands,
+        region=None if d.get("region") is None else str(d["region"]),
+        counts=None if d.get("counts") is None else np.asarray(d["counts"], dtype=np.int64),
     )
 
 
@@ -366,6 +383,8 @@ def read_results(folder: str | os.PathLike[str]) -> Results:
             name=sname, label=str(s.get("label", sname)), luminosity_fb=s.get("luminosity_fb"),
             xsec=dict(s.get("xsec") or {}), variations=list(s.get("variations") or []),
             histograms=hists, cutflow=list(s.get("cutflow") or []),
+            region_cutflows={str(r): list(rows)
+                             for r, rows in (s.get("region_cutflows") or {}).items()},
         )
     return out
 

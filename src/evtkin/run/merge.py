@@ -76,6 +76,11 @@ def _specs(plan: Plan) -> dict[str, HistSpec]:
             if h.response:
                 for suffix, spec in response_specs(plan.hist_specs[name]).items():
                     specs[name + suffix] = spec
+    from evtkin.run.chunkfill import varied_name
+
+    for vname, _sys, _sign in plan.variations:  # object-level systematics
+        for name, spec in plan.hist_specs.items():
+            specs[varied_name(name, vname)] = spec
     return specs
 
 

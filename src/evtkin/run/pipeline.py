@@ -28,6 +28,7 @@ from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import normalise
 from evtkin.hists.record import HistRecord
 from evtkin.hists.xsec import FileTotals, XsecResult
+from evtkin.run.chunkfill import varied_name
 from evtkin.run.executors import Executor, execute, executor_for, local_cores
 from evtkin.run.inputs import input_source
 from evtkin.run.partial import PartialResult
@@ -80,19 +81,29 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
         def factor(file_index: int, pid: int) -> float:
             return 0.0
 
+    def summed(hname: str, stored: str, weight_names: tuple[str, ...]) -> HistAccumulator:
+        acc = HistAccumulator(plan.hist_specs[hname], weight_names)
+        for (s, h, i, pid), part in sorted(partial.hists.items()):
+            if s == name and h == stored:
+                acc.add_scaled(part, factor(i, pid))
+        return acc
+
+    def normalised_of(hname: str, acc: HistAccumulator) -> HistRecord:
+        try:
+            return normalise(acc, plan.histogram(hname).normalise,
+                             luminosity_fb=spec.luminosity_fb)
+        except ValueError as exc:
+            raise ConfigError(f"histograms.{hname} for sample {name!r}: {exc}") from None
+
     weighted: dict[str, HistAccumulator] = {}
     normalised: dict[str, HistRecord] = {}
     for hname in plan.histograms_for(name):
-        hspec = plan.config.histograms[hname]
-        acc = HistAccumulator(plan.hist_specs[hname], variations)
-        for (s, h, i, pid), part in sorted(partial.hists.items()):
-            if s == name and h == hname:
-                acc.add_scaled(part, factor(i, pid))
-        weighted[hname] = acc
-        try:
-            normalised[hname] = normalise(acc, hspec.normalise, luminosity_fb=spec.luminosity_fb)
-        except ValueError as exc:
-            raise ConfigError(f"histograms.{hname} for sample {name!r}: {exc}") from None
+        weighted[hname] = summed(hname, hname, variations)
+        normalised[hname] = normalised_of(hname, weighted[hname])
+    varied: dict[str, dict[str, HistRecord]] = {}
+    for vname, _sys, _sign in plan.variations:
+        varied[vname] = {h: normalised_of(h, summed(h, varied_name(h, vname), ()))
+                         for h in normalised}
 
     rows = plan.cutflow_rows
     n_raw = np.zeros(len(rows), np.int64)
@@ -104,34 +115,73 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
             n_raw += cf.n_raw
             sum_w += f * cf.sum_w
             sum_w2 += f * f * cf.sum_w2
-    cutflow = []
-    for k, step in enumerate(rows):
-        prev = sum_w[k - 1] if k else sum_w[0]
-        cutflow.append({
-            "step": step,
-            "n_raw": int(n_raw[k]),
-            "sum_w": float(sum_w[k]),
-            "sum_w2": float(sum_w2[k]),
-            "eff_step": float(sum_w[k] / prev) if prev else math.nan,
-            "eff_cum": float(sum_w[k] / sum_w[0]) if sum_w[0] else math.nan,
-        })
+    cutflow = _cutflow(rows, range(plan.common_rows), n_raw, sum_w, sum_w2)
+    region_cutflows = {r: _cutflow(rows, idx, n_raw, sum_w, sum_w2)
+                       for r, idx in plan.region_rows.items()}
     from evtkin.hists.normalise import shape_fractions
     from evtkin.hists.recipes import bands_for, resolve_recipes
 
-    recipes, notes = resolve_recipes(plan.config, name, variations, [r.info for r in records])
-    bands = ({h: bands_for(nh.all_rows(), recipes) for h, nh in normalised.items()}
-             if recipes else {})
+    if records:
+        recipes, notes = resolve_recipes(plan.config, name, variations,
+                                         [r.info for r in records])
+    else:  # e.g. one part of a run split over jobs that holds none of this sample's files
+        recipes, notes = [], [f"{name}: no file of this sample was read: no bands"]
+    bands = ({h: bands_for(nh.all_rows(), recipes, {v: varied[v][h].values for v in varied})
+              for h, nh in normalised.items()} if recipes else {})
     shape_bands = {}
     for h, nh in normalised.items():
         frac = shape_fractions(nh) if recipes else None
         if frac is not None:
-            shape_bands[h] = bands_for(frac, recipes)
+            shifted = {}
+            for v in varied:
+                vf = shape_fractions(varied[v][h])
+                if vf is not None:
+                    shifted[v] = vf[0]
+            shape_bands[h] = bands_for(frac, recipes, shifted)
         # the record carries its bands from here to the output files
         nh.bands = dict(bands.get(h, {}))
         nh.shape_bands = dict(shape_bands.get(h, {}))
     return SampleResult(name, spec.label, spec.luminosity_fb, spec.toy, xsec, variations,
                         normalised, weighted, cutflow, n_events, bands, shape_bands, recipes,
-                        notes)
+                        notes, varied=varied, region_cutflows=region_cutflows)
+
+
+def _cutflow(rows: tuple[str, ...], index: Any, n_raw: np.ndarray, sum_w: np.ndarray,
+             sum_w2: np.ndarray) -> list[dict[str, Any]]:
+    """The cutflow of the rows ``index`` (in order), efficiencies relative to the row before."""
+    out: list[dict[str, Any]] = []
+    idx = list(index)
+    first = sum_w[idx[0]] if idx else 0.0
+    for j, k in enumerate(idx):
+        prev = sum_w[idx[j - 1]] if j else first
+        out.append({
+            "step": rows[k],
+            "n_raw": int(n_raw[k]),
+            "sum_w": float(sum_w[k]),
+            "sum_w2": float(sum_w2[k]),
+            "eff_step": float(sum_w[k] / prev) if prev else math.nan,
+            "eff_cum": float(sum_w[k] / first) if first else math.nan,
+        })
+    return out
+
+
+def _factors(plan: Plan, partial: PartialResult, samples: Mapping[str, SampleResult]
+             ) -> dict[str, Callable[[int, int], float]]:
+    """Per sample: (file index, process id) → the σ factor of its weights."""
+    out: dict[str, Callable[[int, int], float]] = {}
+    for name, s in samples.items():
+        xs = s.xsec
+        if xs is None:
+            continue
+        files = sorted(i for (smp, i) in partial.files if smp == name)
+        position = {i: k for k, i in enumerate(files)}
+
+        def factor(i: int, pid: int, xs: XsecResult = xs,
+                   position: dict[int, int] = position) -> float:
+            return xs.factor(pid, position[i])
+
+        out[name] = factor
+    return out
 
 
 def finalise(plan: Plan, partial: PartialResult) -> dict[str, SampleResult]:
@@ -235,6 +285,17 @@ def run(
         raise ValueError(f"jobs must be a whole number >= 1, got {jobs!r}")
     cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
     plan = build_plan(cfg, step_size=step_size, max_events=max_events)
+    target = Path(out) if out is not None else cfg.output.directory
+    if cfg.skims:
+        if target is None:
+            raise ConfigError(f"{cfg.source}: [skims] write event tables into the results "
+                              "folder: give one ([output] directory, or out=...)")
+        import dataclasses
+        import shutil
+
+        skim_dir = Path(target) / "skims"
+        shutil.rmtree(skim_dir, ignore_errors=True)  # parts of an earlier run
+        plan = dataclasses.replace(plan, skim_dir=str(skim_dir))
     planned = make_units(plan)  # missing inputs fail before anything else
     only_files = None
     if part is not None:
@@ -263,7 +324,11 @@ def run(
     if part is not None:
         provenance["part"] = {"index": part[0], "of": part[1]}
     result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
-    target = Path(out) if out is not None else cfg.output.directory
+    if plan.skim_dir is not None and target is not None:
+        from evtkin.run.skims import assemble_skims
+
+        tables = assemble_skims(plan, target, _factors(plan, partial, samples))
+        provenance["skims"] = [str(p.relative_to(target)) for p in tables]
     if target is not None:
         from evtkin.run.outputs import write_outputs
 

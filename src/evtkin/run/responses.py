@@ -21,7 +21,7 @@ __all__ = ["fill_responses", "finalise_responses", "response_names"]
 
 def response_names(plan: Plan, sample: str) -> list[str]:
     """The histograms of ``sample`` that get a response matrix."""
-    return [n for n in plan.histograms_for(sample) if plan.config.histograms[n].response]
+    return [n for n in plan.histograms_for(sample) if plan.histogram(n).response]
 
 
 def _per_event(view: ChunkView, name: str, n: int) -> np.ndarray:

@@ -45,6 +45,10 @@ class SampleResult:
     uncertainty_notes: list[str] = field(default_factory=list)
     #: per histogram marked ``response = true``: evtkin.hists.response.Response
     responses: dict[str, Any] = field(default_factory=dict)
+    #: per object-level variation (``jes_up``, ...): its normalised histograms (nominal weight)
+    varied: dict[str, dict[str, HistRecord]] = field(default_factory=dict)
+    #: per region: its cutflow (the common rows up to where it branches off, then its steps)
+    region_cutflows: dict[str, list[dict[str, Any]]] = field(default_factory=dict)
 
 
 @dataclass(eq=False, repr=False)
@@ -100,6 +104,13 @@ class RunResult(Results):
         return dict(self.items())
 
 
+def _with_region(plan: Plan, name: str, h: tables.HistResult) -> tables.HistResult:
+    base = plan.hist_base.get(name, name)
+    if base != name:
+        h.region = name[len(base) + 1:]
+    return h
+
+
 def results_record(plan: Plan, result: RunResult, *, with_cutflow: bool = True) -> tables.Results:
     """The plain results record of a run (nominal values and uncertainty bands)."""
     samples = {}
@@ -110,8 +121,10 @@ def results_record(plan: Plan, result: RunResult, *, with_cutflow: bool = True) 
             luminosity_fb=s.luminosity_fb,
             xsec=s.xsec.to_dict() if s.xsec is not None else {},
             variations=list(s.variations),
-            histograms=dict(s.histograms),  # the records, with their bands
+            histograms={h: _with_region(plan, h, nh)  # the records, with their bands
+                        for h, nh in s.histograms.items()},
             cutflow=list(s.cutflow) if with_cutflow else [],
+            region_cutflows=dict(getattr(s, "region_cutflows", {})) if with_cutflow else {},
         )
     meta: dict[str, Any] = {"analysis": plan.config.name}
     if plan.config.note:

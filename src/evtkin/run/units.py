@@ -27,12 +27,11 @@ import awkward as ak
 import numpy as np
 
 from evtkin.errors import ConfigError
-from evtkin.hists.fill import HistAccumulator, fill_many
 from evtkin.run.checksums import sha256_of
 from evtkin.run.inputs import input_source
 from evtkin.run.inputs.lhe import lhe_byte_ranges
-from evtkin.run.partial import Cutflow, FileRecord, PartialResult, ProcessTotals
-from evtkin.run.plan import Plan, analyse_chunk, hist_entries
+from evtkin.run.partial import FileRecord, PartialResult
+from evtkin.run.plan import Plan, analyse_chunk
 from evtkin.run.responses import fill_responses, response_names
 from evtkin.run.workunit import WorkUnit, entry_ranges
 
@@ -104,45 +103,6 @@ def _weights(chunk: Any) -> tuple[np.ndarray, np.ndarray]:
     return w0, wv
 
 
-def fill_by_process(
-    plan: Plan,
-    result: PartialResult,
-    sample: str,
-    file_index: int,
-    chunk: Any,
-    masks: Any,
-    entries: dict[str, Any],
-    w0: np.ndarray,
-    wv: np.ndarray,
-    variations: tuple[str, ...],
-    group: np.ndarray | None = None,
-) -> None:
-    """Add one analysed chunk to ``result``, separately for each process id it holds.
-
-    Totals (for the cross-section bookkeeping), cutflow counters and histograms are kept per
-    (sample, file, process id), so that each gets its own normalisation factor after the merge.
-    """
-    n_rows = len(plan.cutflow_rows)
-    pid = np.asarray(ak.to_numpy(chunk["process_id"]), dtype=np.int64)
-    pids = [int(pid[0])] if np.all(pid == pid[0]) else [int(p) for p in np.unique(pid)]
-    for p in pids:
-        key = (sample, file_index, p)
-        in_p = None if len(pids) == 1 else pid == p
-        _add_totals(result, key, w0, wv, in_p)
-        _add_cutflow(result, key, masks, w0, in_p, n_rows)
-        items = []
-        for name, (values, rows) in entries.items():
-            if in_p is not None:
-                sel = in_p[rows]
-                values, rows = [v[sel] for v in values], rows[sel]
-            hkey = (sample, name, file_index, p)
-            acc = result.hists.get(hkey)
-            if acc is None:
-                acc = result.hists[hkey] = HistAccumulator(plan.hist_specs[name], variations)
-            items.append((acc, values, rows))
-        fill_many(items, weight=w0, variations=wv, group=group)
-
-
 def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *,
                  read_threads: int | None = None) -> PartialResult:
     """Read and analyse one unit; return its partial result (the one unit loop of every
@@ -154,21 +114,18 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     With ``truth_files`` the response matrices of the histograms marked ``response = true``
     are filled as well.
     """
+    from evtkin.run.chunkfill import fill_chunk
+
     sample = unit.sample
     spec = plan.config.samples[sample]
-    hist_names = plan.histograms_for(sample)
     responses = response_names(plan, sample) if spec.truth_files else []
-    steps = {s.name: i + 1 for i, s in enumerate(plan.config.steps)}
-    rows_of_hist = {
-        n: steps[h.after] if h.after is not None else len(steps)
-        for n, h in plan.config.histograms.items() if n in hist_names
-    }
     reading = input_source(spec.format).open(plan, unit, read_threads=read_threads,
                                              with_truth=bool(responses))
     result = PartialResult()
     seconds = {"read": 0.0, "select": 0.0, "fill": 0.0}
     variations: tuple[str, ...] | None = None
     n_total = 0
+    n_chunks = 0
     t0 = time.perf_counter()
     try:
         for chunk in reading.chunks():
@@ -180,13 +137,6 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
             if n == 0:
                 t0 = time.perf_counter()
                 continue
-            view, masks = analyse_chunk(plan, chunk)
-            entries = {name: hist_entries(view, name, masks[rows_of_hist[name]])
-                       for name in hist_names}
-            generated = reading.truth(chunk) if responses else None
-            truth = analyse_chunk(plan, generated) if generated is not None else None
-            t2 = time.perf_counter()
-            seconds["select"] += t2 - t1
             w0, wv = _weights(chunk)
             names = variations or ()
             if wv.shape[1] != len(names):
@@ -197,19 +147,24 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
             # LHEF 2.0 <eventgroup>: one statistical unit (weights summed per bin before squaring)
             group = (np.asarray(ak.to_numpy(chunk["group"]), dtype=np.int64)
                      if "group" in ak.fields(chunk) else None)
-            fill_by_process(plan, result, sample, unit.file_index, chunk, masks, entries,
-                            w0, wv, names, group)
-            if truth is not None:
+            view, masks = fill_chunk(plan, result, sample, unit.file_index, chunk, w0, wv,
+                                     names, group, unit_index=unit.index,
+                                     chunk_index=n_chunks, seconds=seconds)
+            n_chunks += 1
+            generated = reading.truth(chunk) if responses else None
+            if generated is not None:
+                t2 = time.perf_counter()
+                truth = analyse_chunk(plan, generated)
                 _fill_responses_by_process(plan, result, sample, unit.file_index, chunk,
                                            responses, (view, masks), truth, w0)
+                seconds["fill"] += time.perf_counter() - t2
             n_total += n
             t0 = time.perf_counter()
-            seconds["fill"] += t0 - t2
             if progress is not None:
                 progress(n)
             # drop the chunk and everything made from it before the next one is read: the
             # reader then reuses its memory (a worker holds one chunk at a time, not two)
-            del chunk, view, masks, entries, w0, wv, group, generated, truth
+            del chunk, view, masks, w0, wv, group, generated
     finally:
         reading.close()
     seconds["read"] += time.perf_counter() - t0
@@ -231,27 +186,3 @@ def _fill_responses_by_process(plan: Plan, result: PartialResult, sample: str,
     for p in pids:
         in_p = None if pids.size == 1 else pid == p
         fill_responses(plan, result, (sample, file_index, int(p)), names, reco, truth, w0, in_p)
-
-
-def _add_totals(result: PartialResult, key: tuple[str, int, int], w0: np.ndarray,
-                wv: np.ndarray, sel: np.ndarray | None) -> None:
-    w = w0 if sel is None else w0[sel]
-    v = wv if sel is None else wv[sel]
-    # Σw² as a numpy reduction, not np.dot: a BLAS dot product starts the BLAS library's
-    # threads, which then spin on the other cores (measured: +6 % CPU over the wall time of
-    # a one-core run, taken from the other worker when workers share the cores)
-    add = ProcessTotals(int(w.size), float(w.sum()), float(np.square(w).sum()),
-                        float(np.abs(w).sum()), int(np.count_nonzero(w < 0)), v.sum(axis=0))
-    result.totals[key] = result.totals[key] + add if key in result.totals else add
-
-
-def _add_cutflow(result: PartialResult, key: tuple[str, int, int], masks: list[np.ndarray],
-                 w0: np.ndarray, sel: np.ndarray | None, n_rows: int) -> None:
-    cf = Cutflow.empty(n_rows)
-    for i, m in enumerate(masks):
-        mm = m if sel is None else m & sel
-        w = w0[mm]
-        cf.n_raw[i] = int(np.count_nonzero(mm))
-        cf.sum_w[i] = float(w.sum())
-        cf.sum_w2[i] = float(np.square(w).sum())
-    result.cutflows[key] = result.cutflows[key] + cf if key in result.cutflows else cf

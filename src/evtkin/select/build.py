@@ -9,7 +9,7 @@ clustering, pT ordering and overlap removal in the declared order, on whole arra
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Collection, Mapping, Sequence
 from typing import Any, Protocol
 
 import awkward as ak
@@ -133,9 +133,12 @@ def _overlap(objs: dict[str, Any], overlap: Sequence[OverlapDefinition]) -> dict
 
 # --------------------------------------------------------------------------- from particles
 
-def particle_object(spec: ObjectDefinition, particles: Any) -> Any:
+def particle_object(spec: ObjectDefinition, particles: Any,
+                    vary: Callable[[Any], Any] | None = None) -> Any:
     """One collection from the event record's particles: PDG ids, status, thresholds, decay
-    ancestry, anti-kT clustering, ``require`` and isolation against particles."""
+    ancestry, anti-kT clustering, ``require`` and isolation against particles. ``vary``: a
+    function applied to the candidates (clustered jets, selected particles) before the
+    thresholds and ``require`` (an object-level systematic variation)."""
     mask = None
     if spec.from_decay_of:
         mask = truth.descends_from(particles, spec.from_decay_of)
@@ -143,7 +146,14 @@ def particle_object(spec: ObjectDefinition, particles: Any) -> Any:
         inputs = obj.select(particles, pdgids=spec.pdgids, status=spec.status, mask=mask,
                             sort=False)
         jets = jetalg.antikt(inputs, spec.cluster_radius)
+        if vary is not None:
+            jets = vary(jets)
         out = obj.select(jets, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
+                         abs_rapidity_max=spec.max_abs_rapidity)
+    elif vary is not None:
+        cands = vary(obj.select(particles, pdgids=spec.pdgids, status=spec.status, mask=mask,
+                                sort=False))
+        out = obj.select(cands, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
                          abs_rapidity_max=spec.max_abs_rapidity)
     else:
         out = obj.select(particles, pdgids=spec.pdgids, status=spec.status, pt_min=spec.min_pt,
@@ -161,9 +171,13 @@ def particle_object(spec: ObjectDefinition, particles: Any) -> Any:
 
 def particle_objects(particles: Any, objects: Mapping[str, ObjectDefinition],
                      overlap: Sequence[OverlapDefinition],
-                     missing: MissingPtDefinition | None) -> dict[str, Any]:
-    """Every defined collection (and the missing pT) from the event record's particles."""
-    objs = {name: particle_object(spec, particles) for name, spec in objects.items()}
+                     missing: MissingPtDefinition | None, *,
+                     vary: Callable[[Any], Any] | None = None,
+                     varied: Collection[str] = ()) -> dict[str, Any]:
+    """Every defined collection (and the missing pT) from the event record's particles;
+    ``vary`` is applied to the candidates of the collections named in ``varied``."""
+    objs = {name: particle_object(spec, particles, vary if name in varied else None)
+            for name, spec in objects.items()}
     if any(o.isolation_objects for o in objects.values()):
         objs = isolate_against_objects(objects, objs)
     if overlap:
@@ -192,14 +206,19 @@ def merged_collection(chunk: Any, sources: Sequence[str]) -> Any:
 
 def collection_objects(chunk: Any, objects: Mapping[str, ObjectDefinition],
                        overlap: Sequence[OverlapDefinition],
-                       missing: MissingPtDefinition | None, where: str) -> dict[str, Any]:
+                       missing: MissingPtDefinition | None, where: str, *,
+                       vary: Callable[[Any], Any] | None = None,
+                       varied: Collection[str] = ()) -> dict[str, Any]:
     """The defined objects (and missing pT) of a chunk of reconstructed collections:
     thresholds, ``require``, pT ordering, isolation against objects and overlap removal in the
-    declared order. ``where`` names the config in error messages."""
+    declared order. ``where`` names the config in error messages. ``vary`` is applied to the
+    collection of every object named in ``varied`` before its cuts."""
     out: dict[str, Any] = {}
     for name, spec in objects.items():
         assert spec.source is not None
         coll = merged_collection(chunk, spec.source)
+        if vary is not None and name in varied:
+            coll = vary(coll)
         if spec.require is not None:
             coll = coll[object_mask(spec, coll, where)]
         out[name] = obj.select(coll, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,

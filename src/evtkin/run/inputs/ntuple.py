@@ -64,6 +64,11 @@ def _expressions(cfg: AnalysisConfig) -> list[Expression]:
     exprs = [s.require for s in cfg.steps] + list(cfg.quantities.values())
     exprs += [a.value for h in cfg.histograms.values() for a in h.axes]
     exprs += [o.require for o in cfg.objects.values() if o.require is not None]
+    exprs += [st.require for r in getattr(cfg, "regions", {}).values() for st in r.steps]
+    exprs += [e for k in getattr(cfg, "skims", {}).values() for e in k.columns.values()]
+    exprs += [e for e in (getattr(cfg, "weight", None),
+                          *(getattr(s, "weight", None) for s in cfg.samples.values()))
+              if e is not None]
     return exprs
 
 
@@ -92,6 +97,10 @@ def config_fields(cfg: AnalysisConfig, mapping: NtupleMapping) -> list[str]:
                     else [f"{c.name}.{next(iter(c.coords))}"])
     if cfg.missing_pt is not None and cfg.missing_pt.source is not None:
         out.append(cfg.missing_pt.source)
+    names: set[str] = set()
+    for e in _expressions(cfg):
+        names |= set(e.names)
+    out += [n for n in mapping.scalars if n in names]
     return list(dict.fromkeys(out))
 
 
