@@ -27,6 +27,7 @@ run configs/ttbar_truth.toml ttbar_truth \
     samples/toy_ttbar.lhe.gz samples/toy_ttbar_deformed.lhe.gz
 run configs/drell_yan.toml drell_yan samples/toy_drellyan.lhe.gz
 run configs/ttbar_reco.toml ttbar_reco samples/toy_ttbar_reco.root
+run configs/ttbar_regions.toml ttbar_regions samples/toy_ttbar_reco.root
 
 # The standard against the deformed top-pair sample: ratios, pulls, χ² tests, HTML report.
 # Shapes only (each histogram normalised to unit area): the deformation changes m(tt̄), the top

@@ -105,6 +105,8 @@ def main(args: argparse.Namespace) -> int:
                      part=part)
     finally:
         restore()
+    for w in cfg.warnings:
+        print(f"warning: {w}", file=sys.stderr)
     for name, s in result.samples.items():
         sigma = f"{s.xsec.sigma_pb:.6g} pb" if s.xsec is not None else "n/a"
         print(f"{name}: {s.n_events} events, σ = {sigma}, "

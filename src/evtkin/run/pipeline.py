@@ -321,6 +321,7 @@ def run(
     provenance = _provenance(plan, partial, samples, started, seconds)
     provenance["execution"] = execution.record()
     provenance["skipped"] = list(execution.skipped)
+    provenance["config_warnings"] = list(cfg.warnings)
     if part is not None:
         provenance["part"] = {"index": part[0], "of": part[1]}
     result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
