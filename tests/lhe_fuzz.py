@@ -189,7 +189,13 @@ def _read(path: str, strict: bool, scanner: str) -> Outcome:
     finally:
         lhe_mod._KERNEL, lhe_mod._KIND, lhe_mod.BUFFER_BYTES = saved
     out.seconds = time.perf_counter() - t0
+    if out.seconds > SLOWEST[0]:
+        SLOWEST[0], SLOWEST[1] = out.seconds, os.path.getsize(path)
     return out
+
+
+#: the slowest read so far: (seconds, input bytes)
+SLOWEST: list[float] = [0.0, 0]
 
 
 _REFERENCE: dict[str, list[str]] = {}

@@ -562,6 +562,8 @@ class _Reader:
         self.name = name
         self.free: queue.SimpleQueue[bytearray] = queue.SimpleQueue()
         self.stop = threading.Event()
+        #: what ended the stream early (a cut or corrupt compressed file), if anything
+        self.damage: str | None = None
         self.items = self._produce()
         self.thread: threading.Thread | None = None
         if threaded:
@@ -578,10 +580,14 @@ class _Reader:
         while fill < total:
             try:
                 got = self.stream.readinto(mv[fill:])  # type: ignore[attr-defined]
+            except LHEError as exc:
+                # damage in the compressed stream: what came before it is read as the
+                # end of the stream, the caller reports the damage afterwards
+                self.damage = str(exc)
+                break
             except Exception as exc:
-                raise LHEError(
-                    f"{self.name}: cannot read (corrupt compressed stream?): {exc}"
-                ) from exc
+                self.damage = f"{self.name}: cannot read (corrupt compressed stream?): {exc}"
+                break
             if not got:
                 break
             fill += got
@@ -922,6 +928,7 @@ def _iterate(
     stopped = False
     eof = False
     skipped: list[tuple[int, str]] = []
+    damage_reported = False
     try:
         reader_done = False
         carry: tuple[int, np.ndarray] | None = None
@@ -983,7 +990,14 @@ def _iterate(
                     continue
                 tail = bytes(arr[resume:])
                 n_before = n_seen
-                if b"<event" in tail:
+                if reader.damage is not None:
+                    line = _line_at_safe(source, base + resume)
+                    msg = (
+                        f"{reader.damage}; the events from line {line} on cannot be read; "
+                        f"{n_before} complete events precede"
+                    )
+                    damage_reported = True
+                elif b"<event" in tail:
                     line = _line_at(source, base + resume)
                     msg = (
                         f"{name}: line {line}: the file is cut short inside an event that "
@@ -999,6 +1013,9 @@ def _iterate(
             reader.recycle(raw)
         if skipped:
             _warn_skipped(source, name, skipped)
+        if reader.damage is not None and not damage_reported:
+            _problem(f"{reader.damage}; {n_seen} complete events precede", strict)
+            saw_end = True
         if not saw_end and not stopped and eof and need_end:
             _problem(
                 f"{name}: the file ends without </LesHouchesEvents> after "
@@ -1015,6 +1032,14 @@ def _iterate(
             fut.cancel()
         if pool is not None:
             pool.shutdown(wait=True)
+
+
+def _line_at_safe(source: Source, pos: int) -> int:
+    """:func:`_line_at` of a position before damage in the stream (never raises there)."""
+    try:
+        return _line_at(source, pos)
+    except LHEError:  # pragma: no cover - the position lies before the damage
+        return 0
 
 
 def _lines_at(source: Source, positions: list[int]) -> list[int]:

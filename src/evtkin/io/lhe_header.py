@@ -267,6 +267,8 @@ def read_preamble(stream: BinaryIO, name: str) -> tuple[bytes, tuple[str, int, i
     while True:
         try:
             more = stream.read(want - len(data))
+        except LHEError:
+            raise  # the decoder's own message (cut short or corrupt, with the file name)
         except (OSError, EOFError, ValueError) as exc:
             raise LHEError(f"{name}: cannot read (corrupt compressed stream?): {exc}") from exc
         except Exception as exc:  # zstandard raises its own ZstdError

@@ -583,6 +583,7 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
             full = False
             bad = False
             badnum = -1  # the first stored token that is no number
+            slow0 = nslow
             fi = 0
             while True:
                 while pos < n and _CC[buf[U(pos)]] & blank:
@@ -705,8 +706,6 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     slow_token = True
                 if kind == 3 and k >= nw:
                     continue  # surplus <weights> values: counted, not stored
-                if slow_token and badnum < 0 and not _number_ok(buf, s, pos):
-                    badnum = s
                 at = dbase + k * dstride
                 if kind == 2:
                     pff[U(at)] = v
@@ -725,6 +724,13 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                     slow[U(nslow), 3] = pos
                     nslow += 1
             # ---- end of the run
+            if nslow > slow0:
+                # the run's slow tokens must be numbers (checked here, not in the loop:
+                # no call in the hot loop)
+                for j in range(slow0, nslow):
+                    if not _number_ok(buf, slow[U(j), 2], slow[U(j), 3]):
+                        badnum = slow[U(j), 2]
+                        break
             if (status in (ERR_NEGATIVE_NUP, ERR_NUP_TOO_BIG)) and _line_runs_out(
                 buf, pos, n
             ):

@@ -5,24 +5,31 @@ Compression is detected from the first bytes of the file (never from the name):
 =========  ===================  ==========================================
 format     magic bytes          decoder
 =========  ===================  ==========================================
-gzip       ``1f 8b``            ``isal.igzip`` if importable, else ``gzip``
-zstd       ``28 b5 2f fd``      ``zstandard`` (multi-frame read as one)
+gzip       ``1f 8b``            ``isal.isal_zlib`` if importable, else ``zlib``
+zstd       ``28 b5 2f fd``      ``zstandard``
 bzip2      ``42 5a 68``         ``bz2``
 xz         ``fd 37 7a 58 5a``   ``lzma``
 =========  ===================  ==========================================
 
-Multi-member gzip files (``cat a.gz b.gz``) read as one stream. Errors name the file.
+Every format is decoded by its incremental decoder object (:class:`_Decompressing`), so
+that nothing decoded is lost at damage: a file cut short delivers every byte before the
+cut, and the next read raises an :class:`~evtkin.errors.LHEError` that says whether the
+stream was cut short (the input ends inside a member or frame) or is corrupt. Multi-member
+gzip files (``cat a.gz b.gz``), multi-stream bzip2/xz and multi-frame zstd files read as
+one stream. Pipes and FIFOs are refused at once (every reader opens its input more than
+once). Errors name the file.
 """
 
 from __future__ import annotations
 
 import bz2
-import gzip
 import io
 import lzma
 import os
+import stat
+import zlib
 from pathlib import Path
-from typing import BinaryIO
+from typing import Any, BinaryIO, cast
 
 from evtkin.errors import LHEError
 
@@ -49,8 +56,25 @@ def source_name(source: Source) -> str:
     return os.fspath(source) if not isinstance(source, bytes) else source.decode(errors="replace")
 
 
+def check_regular(path: Source) -> None:
+    """Raise a clear :class:`LHEError` unless ``path`` is a regular file (or a link to
+    one): a FIFO, pipe or device cannot be read more than once, and every reader opens
+    its input several times (header, events, line numbers, checksums)."""
+    try:
+        mode = os.stat(path).st_mode
+    except OSError:
+        return  # the opening reports it
+    if not stat.S_ISREG(mode):
+        what = "a FIFO or pipe" if stat.S_ISFIFO(mode) else "not a regular file"
+        raise LHEError(
+            f"{source_name(path)}: {what}; evtkin reads its inputs more than once, so "
+            "write the events to a file first"
+        )
+
+
 def detect_compression(path: Source) -> str | None:
     """``"gzip"``, ``"zstd"``, ``"bz2"``, ``"xz"`` or ``None`` (plain), from the magic bytes."""
+    check_regular(path)
     try:
         with open(path, "rb") as fh:
             head = fh.read(6)
@@ -62,33 +86,136 @@ def detect_compression(path: Source) -> str | None:
     return None
 
 
-def _open_gzip(path: Source) -> BinaryIO:
+_CHUNK = 1 << 18  # compressed bytes fed per step
+_ZSTD_CHUNK = 1 << 12  # zstd's decoder has no output limit: small steps bound its output
+
+
+def _zlib() -> Any:
     try:
-        from isal import igzip  # ISA-L: ~2.5x faster than zlib on this machine
+        from isal import isal_zlib  # ISA-L: faster than zlib on this machine
 
-        return igzip.open(path, "rb")  # type: ignore[no-any-return]
+        return isal_zlib
     except ImportError:  # pragma: no cover - isal is a dependency
-        return gzip.open(path, "rb")  # type: ignore[return-value]
+        return zlib
 
 
-class _ZstdStream(io.RawIOBase):
-    """A readable binary stream over a zstd file (all frames, as one stream)."""
+class _Decompressing(io.RawIOBase):
+    """Decompressed bytes of a gzip / bz2 / xz / zstd file through the format's incremental
+    decoder. Members (frames, streams) follow each other as one stream. All bytes decoded
+    before damage are returned; the read after them raises :class:`LHEError`."""
 
-    def __init__(self, path: Source) -> None:
+    def __init__(self, path: Source, kind: str) -> None:
+        self._name = source_name(path)
+        self._kind = kind
+        self._fh = open(path, "rb")  # noqa: SIM115 - closed in close()
+        self._zlib = _zlib() if kind == "gzip" else None
+        self._dec = self._new()
+        self._input = b""  # compressed bytes not yet given to the decoder (zlib, zstd)
+        self._out = b""  # decoded bytes not yet returned
+        self._opos = 0
+        self._total = 0  # decoded bytes returned so far
+        self._skip = 0  # decoded bytes to drop (after a restart)
+        self._exact = False  # decoding again in small steps after an error
+        self._end = False
+        self._error: LHEError | None = None
+
+    def _new(self) -> Any:
+        if self._kind == "gzip":
+            return self._zlib.decompressobj(31)  # type: ignore[union-attr]
+        if self._kind == "bz2":
+            return bz2.BZ2Decompressor()
+        if self._kind == "xz":
+            return lzma.LZMADecompressor()
         import zstandard
 
-        self._fh = open(path, "rb")  # noqa: SIM115 - closed in close()
-        self._reader = zstandard.ZstdDecompressor().stream_reader(self._fh, read_across_frames=True)
+        return zstandard.ZstdDecompressor().decompressobj()
 
     def readable(self) -> bool:
         return True
 
-    def readinto(self, buffer: memoryview | bytearray) -> int:  # type: ignore[override]
-        return self._reader.readinto(buffer)  # type: ignore[no-any-return]
+    def _fail(self, what: str, exc: Exception | None = None) -> LHEError:
+        detail = f": {exc}" if exc is not None else ""
+        self._error = LHEError(
+            f"{self._name}: the {self._kind} stream {what} after {self._total} decompressed "
+            f"bytes{detail}"
+        )
+        return self._error
+
+    def _decode(self, want: int) -> bytes:
+        """The next decoded bytes (at most about ``want``), b"" at the clean end."""
+        while True:
+            dec = self._dec
+            if dec.eof:
+                rest = dec.unused_data or self._input or self._fh.read(_CHUNK)
+                if not rest:
+                    return b""
+                self._dec = dec = self._new()
+                self._input = rest
+            needs = not self._input
+            if self._kind in ("bz2", "xz"):
+                needs = needs and dec.needs_input
+            if needs:
+                self._input = self._fh.read(_ZSTD_CHUNK if self._kind == "zstd" else _CHUNK)
+                if not self._input:
+                    if self._kind in ("bz2", "xz") and not dec.needs_input:
+                        pass  # output is still buffered in the decoder
+                    else:
+                        raise self._fail("is cut short (the file ends inside a compressed block)")
+            data, self._input = self._input, b""
+            if self._kind == "zstd" and len(data) > _ZSTD_CHUNK:
+                data, self._input = data[:_ZSTD_CHUNK], data[_ZSTD_CHUNK:]
+            try:
+                if self._kind == "gzip":
+                    out = dec.decompress(data, min(want, 4096) if self._exact else want)
+                    self._input = dec.unconsumed_tail
+                elif self._kind == "zstd":
+                    out = dec.decompress(data)
+                else:
+                    out = dec.decompress(data, max_length=want)
+            except Exception as exc:  # each decoder has its own error types
+                if self._zlib is not None and not self._exact:
+                    # an error drops the output of the whole call (and ISA-L decodes
+                    # ahead): decode again with zlib in small steps, skipping what was
+                    # returned, so that only the last few kB before the damage are lost
+                    self._restart_exact()
+                    continue
+                raise self._fail("is corrupt", exc) from None
+            if dec.eof and self._kind != "bz2" and self._kind != "xz":
+                self._input = dec.unused_data + self._input if dec.unused_data else self._input
+            if out and self._skip:
+                drop = min(self._skip, len(out))
+                self._skip -= drop
+                out = out[drop:]
+            if out:
+                return bytes(out)
+
+    def _restart_exact(self) -> None:
+        self._fh.seek(0)
+        self._zlib = zlib
+        self._exact = True
+        self._dec = self._new()
+        self._input = b""
+        self._skip = self._total + len(self._out) - self._opos
+
+    def readinto(self, buffer: Any) -> int:  # type: ignore[override]
+        if self._error is not None:
+            raise self._error
+        if self._opos >= len(self._out):
+            if self._end:
+                return 0
+            self._out = self._decode(max(len(buffer), 1 << 16))
+            self._opos = 0
+            if not self._out:
+                self._end = True
+                return 0
+        k = min(len(buffer), len(self._out) - self._opos)
+        buffer[:k] = self._out[self._opos : self._opos + k]
+        self._opos += k
+        self._total += k
+        return k
 
     def close(self) -> None:
         if not self.closed:
-            self._reader.close()
             self._fh.close()
         super().close()
 
@@ -102,13 +229,7 @@ def open_binary(path: Source) -> BinaryIO:
     try:
         if kind is None:
             return open(path, "rb")
-        if kind == "gzip":
-            return _open_gzip(path)
-        if kind == "zstd":
-            return io.BufferedReader(_ZstdStream(path), buffer_size=1 << 20)  # type: ignore[return-value]
-        if kind == "bz2":
-            return bz2.open(path, "rb")  # type: ignore[return-value]
-        return lzma.open(path, "rb")  # type: ignore[return-value]
+        return cast(BinaryIO, _Decompressing(path, kind))
     except OSError as exc:
         raise LHEError(f"{source_name(path)}: cannot open: {exc.strerror or exc}") from exc
 
