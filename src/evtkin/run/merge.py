@@ -155,6 +155,10 @@ def _completeness(cfg: AnalysisConfig, provs: Sequence[dict[str, Any]],
     if missing:
         out.append(f"{len(missing)} input file(s) of the config were read by none of the "
                    f"folders: {', '.join(missing[:5])}{' ...' if len(missing) > 5 else ''}")
+    if cfg.skims:
+        out.append("event tables ([skims]) are not merged: each folder keeps its own, with "
+                   "weights normalised within its job; rerun one job over all inputs for one "
+                   "table")
     of = {pv["part"]["of"] for pv in provs if isinstance(pv.get("part"), dict)}
     if len(of) == 1:
         n = of.pop()
