@@ -18,6 +18,13 @@ Grammar (lowest precedence first)::
     postfix  := atom ("." NAME | "[" INTEGER "]")*
     atom     := NUMBER | NAME | NAME "(" args ")" | "(" expr ")" | "pi"
 
+Limits: at most ``MAX_LENGTH`` characters, ``MAX_TOKENS`` tokens, ``MAX_NESTING``
+levels of parentheses / ``not`` / signs and a tree ``MAX_DEPTH`` operations deep (a chain
+of 1 000 ``+`` is a config error, not a crash). Constant sub-expressions are computed
+when the expression is read (``2 * pi`` becomes one number), so that ``1/0``,
+``10**10**10``, ``0**-1`` or ``sqrt(-1)`` are errors of the config, pointing at the
+operation.
+
 Names refer to collections, composites, quantities or event fields supplied by the
 caller through a resolver. ``jets[0]`` is the leading object (missing when an event has
 fewer objects); ``jets.pt`` is every object's pT. Adding two objects adds their
@@ -40,6 +47,7 @@ from evtkin.select import kinematics as kin
 
 __all__ = [
     "ATTRIBUTES",
+    "BOOLEAN_KINDS",
     "FUNCTIONS",
     "Expression",
     "ExpressionError",
@@ -76,6 +84,12 @@ class Token:
     pos: int
 
 
+MAX_LENGTH = 10_000
+MAX_TOKENS = 2_000
+MAX_NESTING = 40
+MAX_DEPTH = 200
+_MAX_INDEX_DIGITS = 6
+
 _OPS = ("**", "<=", ">=", "==", "!=", "+", "-", "*", "/", "<", ">", "(", ")", "[", "]", ",", ".")
 _KEYWORDS = {"and", "or", "not"}
 
@@ -84,7 +98,15 @@ def tokenize(text: str) -> list[Token]:
     """Split ``text`` into tokens; raise ExpressionError at the first bad character."""
     tokens: list[Token] = []
     i, n = 0, len(text)
+    if n > MAX_LENGTH:
+        raise ExpressionError(
+            f"expression too long ({n} characters; at most {MAX_LENGTH})", text, MAX_LENGTH
+        )
     while i < n:
+        if len(tokens) >= MAX_TOKENS:
+            raise ExpressionError(
+                f"expression too long (more than {MAX_TOKENS} tokens)", text, tokens[-1].pos
+            )
         c = text[i]
         if c.isspace():
             i += 1
@@ -216,6 +238,12 @@ class _Parser:
         self.text = text
         self.tokens = tokenize(text)
         self.i = 0
+        self.nesting = 0
+
+    def enter(self) -> None:
+        self.nesting += 1
+        if self.nesting > MAX_NESTING:
+            raise self.error(f"expression nested too deeply (more than {MAX_NESTING} levels)")
 
     def peek(self) -> Token:
         return self.tokens[self.i]
@@ -255,9 +283,11 @@ class _Parser:
         return node
 
     def or_(self) -> Node:
+        self.enter()
         node = self.and_()
         while (tok := self.accept("or")) is not None:
             node = Node("or", tok.pos, None, (node, self.and_()))
+        self.nesting -= 1
         return node
 
     def and_(self) -> Node:
@@ -269,7 +299,10 @@ class _Parser:
     def not_(self) -> Node:
         tok = self.accept("not")
         if tok is not None:
-            return Node("not", tok.pos, None, (self.not_(),))
+            self.enter()
+            node = Node("not", tok.pos, None, (self.not_(),))
+            self.nesting -= 1
+            return node
         return self.compare()
 
     def compare(self) -> Node:
@@ -301,7 +334,9 @@ class _Parser:
         tok = self.peek()
         if tok.kind == "op" and tok.value in ("-", "+"):
             self.take()
+            self.enter()
             operand = self.unary()
+            self.nesting -= 1
             if tok.value == "+":
                 return operand
             if operand.kind == "num":
@@ -313,7 +348,9 @@ class _Parser:
         node = self.postfix()
         tok = self.accept("**")
         if tok is not None:
+            self.enter()
             node = Node("binop", tok.pos, "**", (node, self.unary()))
+            self.nesting -= 1
         return node
 
     def postfix(self) -> Node:
@@ -329,6 +366,10 @@ class _Parser:
                 tok = self.take()
                 if tok.kind != "num" or not tok.value.isdigit():
                     raise self.error("expected a whole-number index such as [0] or [-1]", tok)
+                if len(tok.value.lstrip("0")) > _MAX_INDEX_DIGITS:
+                    raise self.error(
+                        f"index too large (at most {_MAX_INDEX_DIGITS} digits)", tok
+                    )
                 self.expect("]", "']'")
                 node = Node("index", open_.pos, sign * int(tok.value), (node,))
             else:
@@ -408,11 +449,94 @@ class Expression:
         return self.text
 
 
+def _depth(tree: Node) -> tuple[int, int]:
+    """(depth of the tree, column of its deepest node), without recursion."""
+    best, col = 0, tree.pos
+    stack = [(tree, 1)]
+    while stack:
+        node, d = stack.pop()
+        if d > best:
+            best, col = d, node.pos
+        stack.extend((a, d + 1) for a in node.args)
+    return best, col
+
+
+_FOLD_FUNCS: dict[str, Callable[[float], float]] = {
+    "abs": abs, "sqrt": math.sqrt, "log": math.log, "exp": math.exp,
+    "cos": math.cos, "sin": math.sin,
+}  # fmt: skip
+
+
+def _constant(value: Any, text: str, pos: int, what: str) -> Any:
+    if isinstance(value, complex):
+        raise ExpressionError(f"{what} is not a real number", text, pos)
+    if isinstance(value, float) and not math.isfinite(value):
+        raise ExpressionError(f"{what} is not a finite number ({value})", text, pos)
+    return value
+
+
+def _fold(node: Node, text: str) -> Node:
+    """``node`` with its constant sub-expressions computed (errors point at the operation)."""
+    if not node.args:
+        return node
+    args = tuple(_fold(a, text) for a in node.args)
+    if args != node.args:
+        node = Node(node.kind, node.pos, node.value, args)
+    if not all(a.kind == "num" for a in args):
+        return node
+    vals = [a.value for a in args]
+    kind, op = node.kind, node.value
+    try:
+        if kind == "binop":
+            a, b = float(vals[0]), float(vals[1])
+            out = {"+": a + b, "-": a - b, "*": a * b}.get(op) if op not in ("/", "**") else None
+            if op == "/":
+                if b == 0:
+                    raise ExpressionError("division by zero in a constant", text, node.pos)
+                out = a / b
+            elif op == "**":
+                if a == 0 and b < 0:
+                    raise ExpressionError("0 to a negative power in a constant", text, node.pos)
+                out = a**b
+            return Node("num", node.pos, _constant(out, text, node.pos, "this constant"))
+        if kind == "neg":
+            return Node("num", node.pos, -float(vals[0]))
+        if kind == "call" and op in _FOLD_FUNCS:
+            out = _FOLD_FUNCS[op](float(vals[0]))
+            return Node("num", node.pos, _constant(out, text, node.pos, f"{op}() of a constant"))
+        if kind == "call" and op in ("min", "max") and len(vals) > 1:
+            return Node("num", node.pos, (min if op == "min" else max)(vals))
+        if kind == "compare":
+            result = all(
+                _CMP[o](x, y) for o, x, y in zip(op, vals[:-1], vals[1:], strict=False)
+            )
+            return Node("num", node.pos, bool(result))
+    except ExpressionError:
+        raise
+    except OverflowError:
+        raise ExpressionError("this constant is too large", text, node.pos) from None
+    except (ValueError, ZeroDivisionError) as exc:
+        raise ExpressionError(f"cannot compute this constant: {exc}", text, node.pos) from None
+    return node
+
+
 def parse(text: str) -> Expression:
-    """Parse ``text`` into an :class:`Expression`; raise :class:`ExpressionError` if invalid."""
+    """Parse ``text`` into an :class:`Expression`; raise :class:`ExpressionError` if invalid.
+
+    Constant sub-expressions are computed here (see the module docstring)."""
     if not isinstance(text, str):
         raise TypeError("expression must be a string")
-    return Expression(text, _Parser(text).parse())
+    tree = _Parser(text).parse()
+    depth, col = _depth(tree)
+    if depth > MAX_DEPTH:
+        raise ExpressionError(
+            f"expression too deep ({depth} nested operations; at most {MAX_DEPTH})", text, col
+        )
+    return Expression(text, _fold(tree, text))
+
+
+#: node kinds whose value is true/false
+BOOLEAN_KINDS = frozenset({"compare", "and", "or", "not"})
 
 
 # --------------------------------------------------------------------------- evaluation

@@ -8,7 +8,7 @@ from collections.abc import Mapping
 from evtkin.config.keylines import Path_
 from evtkin.config.schema import EVENT_FIELDS, AnalysisConfig
 from evtkin.config.tables import _check_name, _Ctx, _suggest
-from evtkin.expr import Expression, ExpressionError
+from evtkin.expr import BOOLEAN_KINDS, Expression, ExpressionError
 
 
 def _check_expression_names(ctx: _Ctx, path: Path_, expr: Expression,
@@ -19,6 +19,30 @@ def _check_expression_names(ctx: _Ctx, path: Path_, expr: Expression,
             hint = f"; did you mean {close!r}?" if close else ""
             exc = ExpressionError(f"unknown name {name!r}{hint}", expr.text, col)
             raise ctx._expr_error(path, exc)
+
+
+def _check_condition(ctx: _Ctx, path: Path_, expr: Expression,
+                     quantities: Mapping[str, Expression], fields_ok: bool = False) -> None:
+    """A ``require`` must be true/false: a comparison, ``and``/``or``/``not``, a quantity
+    that is one, or (object requires, ``fields_ok``) a field of the objects. A constant or a
+    number/object valued expression is an error."""
+    node, seen = expr.tree, set()
+    while node.kind == "name" and node.value in quantities and node.value not in seen:
+        seen.add(node.value)
+        node = quantities[node.value].tree
+    if node.kind in BOOLEAN_KINDS or (fields_ok and node.kind == "name"):
+        return
+    if node.kind == "num":
+        what = "a constant (it does not depend on the event)"
+    elif node.kind == "name":
+        what = f"{node.value!r}, which is not a condition"
+    else:
+        what = "a number or objects, not a condition"
+    exc = ExpressionError(
+        f"require must be true/false (a comparison such as 'count(jets) >= 2', or 'and', "
+        f"'or', 'not' of such); this is {what}", expr.text, node.pos if node is expr.tree else 0
+    )
+    raise ctx._expr_error(path, exc)
 
 
 def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
@@ -41,12 +65,14 @@ def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
             _check_met(ctx, cfg, ("composites", name, "missing_pt"), c.inputs[2])
     for i, step in enumerate(cfg.steps):
         _check_expression_names(ctx, ("step", i, "require"), step.require, known)
+        _check_condition(ctx, ("step", i, "require"), step.require, cfg.quantities)
     for rname, region in cfg.regions.items():
         for i, step in enumerate(region.steps):
             path: Path_ = (("regions", rname, "steps", i, "require")
                            if step.name != rname or len(region.steps) > 1
                            else ("regions", rname, "require"))
             _check_expression_names(ctx, path, step.require, known)
+            _check_condition(ctx, path, step.require, cfg.quantities)
     if cfg.weight is not None:
         _check_expression_names(ctx, ("analysis", "weight"), cfg.weight, known)
     for sname, spec in cfg.samples.items():
@@ -108,6 +134,7 @@ def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
                 if o.require is not None:
                     _check_expression_names(ctx, ("objects", oname, "require"), o.require,
                                             {n: "field" for n in (*PARTICLE_FIELDS, *ATTRIBUTES)})
+                    _check_condition(ctx, ("objects", oname, "require"), o.require, {}, True)
             continue
         m = spec.input
         for oname, o in cfg.objects.items():
@@ -124,6 +151,7 @@ def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
                 known = {n: "field" for src in o.source for n in
                          (*m.collections[src].coords, *m.collections[src].fields, *ATTRIBUTES)}
                 _check_expression_names(ctx, ("objects", oname, "require"), o.require, known)
+                _check_condition(ctx, ("objects", oname, "require"), o.require, {}, True)
         if cfg.missing_pt is not None:
             if cfg.missing_pt.source is None:
                 raise ctx.error(("missing_pt",), f"sample {sname!r} is a ROOT ntuple: give "
