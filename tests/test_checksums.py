@@ -48,3 +48,19 @@ def test_cache_off_and_unwritable(tmp_path, monkeypatch) -> None:
     monkeypatch.delenv("EVTKIN_CACHE_DIR")
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
     assert cache_dir() == tmp_path / "xdg" / "evtkin"
+
+
+def test_bad_cache_entries_are_ignored_and_rewritten(tmp_path, monkeypatch) -> None:
+    # FIPS 180-4: a SHA-256 digest is 256 bits, 64 hexadecimal digits
+    monkeypatch.setenv("EVTKIN_CACHE_DIR", str(tmp_path / "cache"))
+    f = tmp_path / "sample.lhe"
+    f.write_bytes(b"<event>\n" * 100)
+    assert sha256_of(f) == _reference(f)
+    entry = next((tmp_path / "cache").rglob("*.json"))
+    good = entry.read_text()
+    for bad in ("[1, 2]", '"text"', "{}", good.replace(_reference(f), "zz" * 32),
+                good.replace(_reference(f), "0" * 63), good.replace(_reference(f), "'; rm x"),
+                "{not json"):
+        entry.write_text(bad)
+        assert sha256_of(f) == _reference(f)
+        assert entry.read_text() == good  # rewritten

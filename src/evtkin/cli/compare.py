@@ -71,6 +71,9 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         help="include the under- and overflow bins in the χ² tests (default: in-range bins)",
     )
     p.add_argument("--no-report", action="store_true", help="do not write report.html")
+    p.add_argument("--allow-incomplete", action="store_true",
+                   help="compare folders marked INCOMPLETE too (a run was interrupted while "
+                   "writing them; default: refuse them)")
     p.add_argument(
         "--jobs",
         "-j",
@@ -107,6 +110,7 @@ def run(args: argparse.Namespace) -> int:
         with_flow=args.with_flow,
         report=not args.no_report,
         workers=args.jobs if args.jobs else available_cores(),
+        allow_incomplete=args.allow_incomplete,
     )
     print(summary_text(cs), end="")
     print(f"written: {cs.out}/summary.txt, summary.csv, summary.json, plots/")

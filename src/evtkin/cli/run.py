@@ -55,6 +55,10 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                        help="skip work units that fail (e.g. a corrupt file), finish the rest "
                        "and list what was skipped in the provenance and the results (default: "
                        "stop at the first failure)")
+    where.add_argument("--lenient", action="store_true",
+                       help="read damaged LHE files leniently: skip damaged events (and a "
+                       "cut-short end) with a warning naming their lines, and analyse every "
+                       "intact event (default: stop at the first damage)")
     where.add_argument("--part", metavar="K/N",
                        help="read only the K-th of N parts of the input files (whole files, "
                        "dealt out by size; for batch jobs): merge the N results folders with "
@@ -102,7 +106,7 @@ def main(args: argparse.Namespace) -> int:
         result = run(cfg, out=out, max_events=args.max_events, step_size=args.step_size,
                      progress=None, executor=executor, skip_bad=args.skip_bad,
                      unit_bytes=args.unit_size * 1_000_000 if args.unit_size else None,
-                     part=part)
+                     part=part, lenient=args.lenient)
     finally:
         restore()
     for w in cfg.warnings:

@@ -9,6 +9,7 @@ from evtkin.config.keylines import Path_
 from evtkin.config.schema import EVENT_FIELDS, AnalysisConfig
 from evtkin.config.tables import _check_name, _Ctx, _suggest
 from evtkin.expr import BOOLEAN_KINDS, Expression, ExpressionError
+from evtkin.files import safe_name
 
 
 def _check_expression_names(ctx: _Ctx, path: Path_, expr: Expression,
@@ -45,7 +46,24 @@ def _check_condition(ctx: _Ctx, path: Path_, expr: Expression,
     raise ctx._expr_error(path, exc)
 
 
+def _check_file_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    """Sample and histogram names become parts of file names (``evtkin.files.safe_name``):
+    two names that give the same part would overwrite each other's files."""
+    for section, names in (("samples", list(cfg.samples)), ("histograms", list(cfg.histograms))):
+        seen: dict[str, str] = {}
+        for name in names:
+            part = safe_name(name)
+            if part in seen:
+                raise ctx.error(
+                    (section, name),
+                    f"{name!r} and {seen[part]!r} give the same file name {part!r} (characters "
+                    "outside A-Z a-z 0-9 _ . + @ - become '_'); rename one",
+                )
+            seen[part] = name
+
+
 def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    _check_file_names(ctx, cfg)
     known = cfg.names()
     collections = [*list(cfg.objects), "particles"]
     for name, c in cfg.composites.items():

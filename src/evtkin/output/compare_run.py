@@ -37,6 +37,7 @@ def compare_results(
     with_flow: bool = False,
     report: bool = True,
     workers: int = 1,
+    allow_incomplete: bool = False,
 ) -> ComparisonSet:
     """Compare result folders (the first is the reference) and write plots, tables and a report.
 
@@ -48,7 +49,7 @@ def compare_results(
 
     if not folders:
         raise ResultsError("compare: give at least one results folder")
-    results = [read_results(f) for f in folders]
+    results = [read_results(f, allow_incomplete=allow_incomplete) for f in folders]
     cs = compare_loaded(
         results,
         [str(f) for f in folders],

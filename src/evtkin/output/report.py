@@ -443,6 +443,6 @@ def write_run_report(
     """Write the report of a results folder (default ``folder/report.html``); return the path."""
     from evtkin.output.tables import read_results
 
-    results = read_results(folder)
+    results = read_results(folder, allow_incomplete=True)  # written while INCOMPLETE
     target = Path(path) if path is not None else Path(folder) / "report.html"
     return _write(target, render_run_report(results, folder))

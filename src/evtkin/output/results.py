@@ -244,12 +244,15 @@ def from_record(record: tables.Results, *, config_text: str | None = None,
     return samples
 
 
-def load_results(folder: str | Path) -> Results:
+def load_results(folder: str | Path, *, allow_incomplete: bool = False) -> Results:
     """Read a results folder (or its ``results.json``) back into the types
     :func:`evtkin.run` returns: a :class:`Results` mapping of :class:`SampleHists` of
-    ``hist.Hist``, equal to the in-memory result of the run that wrote it."""
+    ``hist.Hist``, equal to the in-memory result of the run that wrote it.
+
+    A folder marked ``INCOMPLETE`` raises :class:`ResultsError` unless
+    ``allow_incomplete``."""
     p = Path(folder)
-    record = tables.read_results(p)
+    record = tables.read_results(p, allow_incomplete=allow_incomplete)
     root = p if p.is_dir() else p.parent
     provenance = None
     prov_path = root / "provenance.json"

@@ -358,10 +358,19 @@ def _load_bands(d: Mapping[str, Any], key: str, where: str) -> dict[str, Band]:
     return bands
 
 
-def read_results(folder: str | os.PathLike[str]) -> Results:
-    """Read ``<folder>/results.json`` back into plain objects (arrays as numpy, flow included)."""
+def read_results(folder: str | os.PathLike[str], *, allow_incomplete: bool = False) -> Results:
+    """Read ``<folder>/results.json`` back into plain objects (arrays as numpy, flow included).
+
+    A folder marked ``INCOMPLETE`` (a run is writing it, or was interrupted) is refused with
+    a :class:`ResultsError` unless ``allow_incomplete``."""
     p = Path(folder)
     path = p / RESULTS_JSON if p.is_dir() else p
+    if not allow_incomplete and (path.parent / "INCOMPLETE").exists():
+        raise ResultsError(
+            f"{path.parent}: the folder is marked INCOMPLETE (a run is writing it, or a run "
+            "writing it was interrupted); run again, or allow incomplete results explicitly "
+            "(--allow-incomplete, allow_incomplete=True)"
+        )
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:

@@ -20,6 +20,7 @@ import contextlib
 import hashlib
 import json
 import os
+import re
 from pathlib import Path
 
 from evtkin.files import atomic_write_text
@@ -34,6 +35,9 @@ def cache_dir() -> Path | None:
         return None if env.strip().lower() in ("", "off", "0", "none") else Path(env)
     xdg = os.environ.get("XDG_CACHE_HOME")
     return (Path(xdg) if xdg else Path.home() / ".cache") / "evtkin"
+
+
+_SHA256 = re.compile(r"[0-9a-f]{64}")
 
 
 def _identity(path: str | os.PathLike[str]) -> dict[str, int | str]:
@@ -65,7 +69,14 @@ def sha256_of(path: str | os.PathLike[str], block: int = 1 << 23) -> str:
     entry = _entry(ident, root)
     with contextlib.suppress(OSError, ValueError):
         rec = json.loads(entry.read_text(encoding="utf-8"))
-        if rec.get("identity") == ident and isinstance(rec.get("sha256"), str):
+        # an entry of another shape, or a digest that is not 64 hex digits, is ignored
+        # (and rewritten below): nothing unchecked reaches the provenance
+        if (
+            isinstance(rec, dict)
+            and rec.get("identity") == ident
+            and isinstance(rec.get("sha256"), str)
+            and _SHA256.fullmatch(rec["sha256"]) is not None
+        ):
             return str(rec["sha256"])
     digest = _hash(path, block)
     if _identity(path) == ident:  # not changed while it was read

@@ -23,7 +23,7 @@ import numpy as np
 
 from evtkin._version import __version__
 from evtkin.config import AnalysisConfig, SampleSpec, load_config
-from evtkin.errors import ConfigError
+from evtkin.errors import ConfigError, ResultsError
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.normalise import normalise
 from evtkin.hists.record import HistRecord
@@ -228,6 +228,7 @@ def _provenance(plan: Plan, partial: PartialResult, samples: Mapping[str, Sample
         "run_seconds": round(seconds, 3),
         "stage_seconds": {k: round(v, 3) for k, v in partial.seconds.items()},
         "step_size": plan.step_size,
+        "lenient": plan.lenient,
         "max_events_per_file": plan.max_events,
         "inputs": inputs,
         "cross_sections": {
@@ -255,6 +256,7 @@ def run(
     skip_bad: bool = False,
     unit_bytes: int | None = None,
     part: tuple[int, int] | None = None,
+    lenient: bool = False,
 ) -> RunResult:
     """Run an analysis and return its normalised histograms (``result[sample][hist]``).
 
@@ -285,54 +287,71 @@ def run(
         raise ValueError(f"jobs must be a whole number >= 1, got {jobs!r}")
     cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
     plan = build_plan(cfg, step_size=step_size, max_events=max_events)
-    target = Path(out) if out is not None else cfg.output.directory
-    if cfg.skims:
-        if target is None:
-            raise ConfigError(f"{cfg.source}: [skims] write event tables into the results "
-                              "folder: give one ([output] directory, or out=...)")
+    if lenient:  # damaged LHE events are skipped with a warning (read_lhe(strict=False))
         import dataclasses
-        import shutil
 
-        skim_dir = Path(target) / "skims"
-        shutil.rmtree(skim_dir, ignore_errors=True)  # parts of an earlier run
-        plan = dataclasses.replace(plan, skim_dir=str(skim_dir))
-    planned = make_units(plan)  # missing inputs fail before anything else
-    only_files = None
-    if part is not None:
-        from evtkin.run.parts import split_files
+        plan = dataclasses.replace(plan, lenient=True)
+    target = Path(out) if out is not None else cfg.output.directory
+    lock = None
+    if target is not None:  # checked and locked before any work
+        from evtkin.files import FolderBusy, FolderLock, check_output_folder
 
-        k, n = part
-        sizes: dict[tuple[str, int], int] = {}
-        for u in planned:
-            sizes[(u.sample, u.file_index)] = sizes.get((u.sample, u.file_index), 0) + u.size
-        only_files = split_files([(s, i, b) for (s, i), b in sizes.items()], n)[k - 1]
-    from evtkin.hists.recipes import check_config_against_files
+        try:
+            check_output_folder(target)
+            lock = FolderLock(target).acquire()
+        except FolderBusy as exc:
+            raise ResultsError(str(exc)) from None
+    try:
+        if cfg.skims:
+            if target is None:
+                raise ConfigError(f"{cfg.source}: [skims] write event tables into the results "
+                                  "folder: give one ([output] directory, or out=...)")
+            import dataclasses
+            import shutil
 
-    check_config_against_files(cfg)  # unknown weight groups/ids fail before reading events
-    if executor is None:  # as the command line chooses (workers start in execute())
-        input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
-                          if f.is_file())
-        executor = executor_for(jobs=jobs, dask=dask, input_bytes=input_bytes)
-    execution = execute(plan, executor, skip_bad=skip_bad, progress=progress,
-                        unit_bytes=unit_bytes, only_files=only_files)
-    partial = execution.partial
-    samples = finalise(plan, partial)
-    seconds = time.perf_counter() - t0
-    provenance = _provenance(plan, partial, samples, started, seconds)
-    provenance["execution"] = execution.record()
-    provenance["skipped"] = list(execution.skipped)
-    provenance["config_warnings"] = list(cfg.warnings)
-    if part is not None:
-        provenance["part"] = {"index": part[0], "of": part[1]}
-    result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
-    if plan.skim_dir is not None and target is not None:
-        from evtkin.run.skims import assemble_skims
+            skim_dir = Path(target) / "skims"
+            shutil.rmtree(skim_dir, ignore_errors=True)  # parts of an earlier run
+            plan = dataclasses.replace(plan, skim_dir=str(skim_dir))
+        planned = make_units(plan)  # missing inputs fail before anything else
+        only_files = None
+        if part is not None:
+            from evtkin.run.parts import split_files
 
-        tables = assemble_skims(plan, target, _factors(plan, partial, samples))
-        provenance["skims"] = [str(p.relative_to(target)) for p in tables]
-    if target is not None:
-        from evtkin.run.outputs import write_outputs
+            k, n = part
+            sizes: dict[tuple[str, int], int] = {}
+            for u in planned:
+                sizes[(u.sample, u.file_index)] = sizes.get((u.sample, u.file_index), 0) + u.size
+            only_files = split_files([(s, i, b) for (s, i), b in sizes.items()], n)[k - 1]
+        from evtkin.hists.recipes import check_config_against_files
 
-        write_outputs(plan, result, target, workers=local_cores(executor))
-        result.out = target
-    return result
+        check_config_against_files(cfg)  # unknown weight groups/ids fail before reading events
+        if executor is None:  # as the command line chooses (workers start in execute())
+            input_bytes = sum(f.stat().st_size for s in cfg.samples.values() for f in s.files
+                              if f.is_file())
+            executor = executor_for(jobs=jobs, dask=dask, input_bytes=input_bytes)
+        execution = execute(plan, executor, skip_bad=skip_bad, progress=progress,
+                            unit_bytes=unit_bytes, only_files=only_files)
+        partial = execution.partial
+        samples = finalise(plan, partial)
+        seconds = time.perf_counter() - t0
+        provenance = _provenance(plan, partial, samples, started, seconds)
+        provenance["execution"] = execution.record()
+        provenance["skipped"] = list(execution.skipped)
+        provenance["config_warnings"] = list(cfg.warnings)
+        if part is not None:
+            provenance["part"] = {"index": part[0], "of": part[1]}
+        result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
+        if plan.skim_dir is not None and target is not None:
+            from evtkin.run.skims import assemble_skims
+
+            tables = assemble_skims(plan, target, _factors(plan, partial, samples))
+            provenance["skims"] = [str(p.relative_to(target)) for p in tables]
+        if target is not None:
+            from evtkin.run.outputs import write_outputs
+
+            write_outputs(plan, result, target, workers=local_cores(executor))
+            result.out = target
+        return result
+    finally:
+        if lock is not None:
+            lock.release()

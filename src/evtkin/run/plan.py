@@ -55,6 +55,8 @@ class Plan:
     variations: tuple[tuple[str, Any, float], ...] = ()
     #: where work units put the part files of event tables (set by the pipeline)
     skim_dir: str | None = None
+    #: read damaged inputs leniently (``read_lhe(strict=False)``: skip damaged events, warn)
+    lenient: bool = False
 
     @property
     def cutflow_rows(self) -> tuple[str, ...]:

@@ -92,20 +92,23 @@ def lhe_byte_ranges(path: str | os.PathLike[str], parts: int,
 
 # --------------------------------------------------------------------------- reading
 
-def lhe_chunks(unit: WorkUnit, step_size: int, threads: int | None) -> Iterator[Any]:
+def lhe_chunks(unit: WorkUnit, step_size: int, threads: int | None,
+               strict: bool = True) -> Iterator[Any]:
     """The reader of one unit's events (a byte range or the whole file)."""
     from evtkin.io.lhe import read_lhe
 
     if unit.byte_range is None:
-        return read_lhe(unit.path, step_size=step_size, threads=threads)
+        return read_lhe(unit.path, step_size=step_size, threads=threads, strict=strict)
     return read_lhe(unit.path, step_size=step_size, threads=threads,
-                    byte_range=unit.byte_range)
+                    byte_range=unit.byte_range, strict=strict)
 
 
 class _LHEReading(UnitReading):
-    def __init__(self, unit: WorkUnit, step_size: int, threads: int | None) -> None:
+    def __init__(self, unit: WorkUnit, step_size: int, threads: int | None,
+                 strict: bool = True) -> None:
         from evtkin.io.lhe_header import lhe_info
 
+        self._strict = strict
         self.unit = unit
         self.info: LHEInfo = lhe_info(unit.path)
         self._names = tuple(str(v) for v in self.info.weight_names)
@@ -116,7 +119,7 @@ class _LHEReading(UnitReading):
     def chunks(self) -> Iterator[Any]:
         if self.unit.max_events == 0:
             return iter(())
-        self._reader = lhe_chunks(self.unit, self._step_size, self._threads)
+        self._reader = lhe_chunks(self.unit, self._step_size, self._threads, self._strict)
         return limit_events(iter(self._reader), self.unit.first_event, self.unit.max_events)
 
     def variation_names(self) -> tuple[str, ...]:
@@ -164,7 +167,7 @@ class LHESource(InputSource):
 
     def open(self, plan: Plan, unit: WorkUnit, *, read_threads: int | None = None,
              with_truth: bool = False) -> UnitReading:
-        return _LHEReading(unit, plan.step_size, read_threads)
+        return _LHEReading(unit, plan.step_size, read_threads, not plan.lenient)
 
     def cross_section(self, spec: SampleSpec, records: Sequence[FileRecord],
                       totals: Sequence[FileTotals]) -> XsecResult:

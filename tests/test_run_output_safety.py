@@ -1,0 +1,102 @@
+"""Output folders and damaged inputs in a run (issue 18 §4, §6): the folder is checked and
+locked before any work, INCOMPLETE folders are refused, file names never collide, and a run
+can read damaged LHE files leniently."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+
+import pytest
+
+import evtkin
+from evtkin.cli import main
+from evtkin.errors import ConfigError, EvtkinError, ResultsError
+from evtkin.files import LOCK_NAME
+from evtkin.io.lhe import LHEWarning
+from evtkin.output.compare_run import compare_results
+from evtkin.run.pipeline import run
+from test_run import dy_config, dy_file, dy_sample  # noqa: F401 - fixtures
+
+
+def small(files):
+    cfg = dy_config(files, output={"formats": ["json"]})
+    cfg["histograms"] = {"mll": cfg["histograms"]["mll"]}
+    return cfg
+
+
+def test_out_onto_a_file_fails_before_reading(tmp_path):
+    bad_input = tmp_path / "not_lhe.lhe"
+    bad_input.write_text("this is not an event file\n")
+    target = tmp_path / "results"
+    target.write_text("a regular file")
+    with pytest.raises(ResultsError, match=r"results: is a file, not a folder"):
+        run(small([bad_input]), out=target)
+
+
+def test_second_run_on_the_same_folder_fails_at_once(tmp_path, dy_file):  # noqa: F811
+    out = tmp_path / "out"
+    out.mkdir()
+    # a live process (this one) holds the lock
+    import socket
+
+    (out / LOCK_NAME).write_text(f"{socket.gethostname()} {os.getpid()}\n")
+    with pytest.raises(ResultsError, match=rf"process {os.getpid()} .* is writing to this folder"):
+        run(small([dy_file]), out=out)
+    assert not (out / "results.json").exists()
+
+
+def test_stale_lock_of_a_dead_process_is_taken_over(tmp_path, dy_file):  # noqa: F811
+    import socket
+
+    child = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                           capture_output=True, text=True, check=True)
+    dead = int(child.stdout)  # the child has exited: its pid names no running process
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / LOCK_NAME).write_text(f"{socket.gethostname()} {dead}\n")
+    run(small([dy_file]), out=out, max_events=200)
+    assert (out / "results.json").is_file()
+    assert not (out / LOCK_NAME).exists()  # released at the end
+
+
+def test_incomplete_folder_is_refused_unless_allowed(tmp_path, dy_file):  # noqa: F811
+    out = tmp_path / "out"
+    run(small([dy_file]), out=out, max_events=200)
+    (out / "INCOMPLETE").write_text("interrupted")
+    with pytest.raises(ResultsError, match="marked INCOMPLETE"):
+        evtkin.load_results(out)
+    with pytest.raises(ResultsError, match="marked INCOMPLETE"):
+        compare_results([out], out=tmp_path / "cmp")
+    assert evtkin.load_results(out, allow_incomplete=True)
+    assert main(["compare", str(out), "--out", str(tmp_path / "cmp2"), "--jobs", "1"]) == 1
+
+
+@pytest.mark.parametrize(("section", "a", "b"), [("samples", "x y", "x_y"),
+                                                 ("histograms", "m/ll", "m_ll")])
+def test_names_that_collide_as_file_names(tmp_path, dy_file, section, a, b):  # noqa: F811
+    cfg = small([dy_file])
+    first = next(iter(cfg[section].values()))
+    cfg[section] = {a: first, b: first}
+    with pytest.raises(ConfigError, match=rf"{b!r} and {a!r} give the same file name"):
+        run(cfg)
+
+
+def test_lenient_run_reads_a_damaged_file(tmp_path, dy_file):  # noqa: F811
+    import gzip
+
+    text = gzip.decompress(dy_file.read_bytes()).decode()
+    # damage the 11th event: its </event> line removed (it would swallow the 12th)
+    starts = [i for i in range(len(text)) if text.startswith("<event>", i)][:12]
+    eleventh = text[starts[10]:starts[11]]
+    damaged = text[:starts[10]] + eleventh.replace("</event>\n", "", 1) + text[starts[11]:]
+    path = tmp_path / "damaged.lhe"
+    path.write_text(damaged)
+    with pytest.raises(EvtkinError, match="the event is not closed"):
+        run(small([path]))
+    with pytest.warns(LHEWarning, match=r"skipped 1 damaged part"):
+        res = run(small([path]), lenient=True, jobs=1)
+    assert res.samples["dy"].cutflow[0]["n_raw"] == 1499  # every intact event
+    assert json.loads(json.dumps(res.provenance))["lenient"] is True
