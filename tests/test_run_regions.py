@@ -155,3 +155,15 @@ def test_region_config_errors_name_the_line(tmp_path) -> None:  # type: ignore[n
     with pytest.raises(ConfigError, match=r"regions\.ee\.require: bad expression: unknown name "
                                           r"'flavor'"):
         load_config(cfg)
+
+
+def test_a_region_condition_that_is_not_true_false_is_an_error(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    cfg = tmp_path / "bad.toml"
+    cfg.write_text(COMMON + REGIONS.replace('require = "flavour == 22"',
+                                            'require = "leptons[0].pt"'))
+    with pytest.raises(ConfigError, match=r"bad\.toml:\d+: regions\.ee\.require: .*true/false"):
+        load_config(cfg)
+    cfg.write_text(COMMON + REGIONS.replace('{ name = "hard", require = "leptons[0].pt > 30" }',
+                                            '{ name = "hard", require = "leptons[0]" }'))
+    with pytest.raises(ConfigError, match=r"regions\.on_z\.steps\[1\]\.require: .*true/false"):
+        load_config(cfg)
