@@ -140,6 +140,8 @@ def test_two_parts_merge_to_the_single_run(setup) -> None:  # type: ignore[no-un
             assert np.array_equal(gh.values, fh.values)
             assert np.array_equal(gh.variances, fh.variances)
             assert gh.entries == fh.entries
+            assert fh.counts is not None
+            assert np.array_equal(gh.counts, fh.counts)
             assert set(gh.bands) == set(fh.bands)
             assert fh.bands
             for b in fh.bands:
