@@ -100,3 +100,22 @@ def test_lenient_run_reads_a_damaged_file(tmp_path, dy_file):  # noqa: F811
         res = run(small([path]), lenient=True, jobs=1)
     assert res.samples["dy"].cutflow[0]["n_raw"] == 1499  # every intact event
     assert json.loads(json.dumps(res.provenance))["lenient"] is True
+
+
+def test_skip_bad_keeps_the_events_of_a_unit_that_fails_late(tmp_path, dy_file):  # noqa: F811
+    import gzip
+
+    text = gzip.decompress(dy_file.read_bytes())
+    cut = text[: len(text) * 2 // 3]  # cut short inside an event, ~1000 events before
+    path = tmp_path / "cut.lhe"
+    path.write_bytes(cut)
+    complete = cut.count(b"</event>")
+    with pytest.raises(EvtkinError, match="cut short"):
+        run(small([path]), step_size=100, jobs=1)
+    res = run(small([path]), step_size=100, jobs=1, skip_bad=True)
+    (rec,) = res.provenance["skipped"]
+    assert "cut short" in rec["error"]
+    # whole chunks of 100 events before the failure are kept, and listed as kept
+    kept = res.samples["dy"].cutflow[0]["n_raw"]
+    assert kept == rec["events_kept"] == complete // 100 * 100
+    assert kept >= 900

@@ -123,7 +123,9 @@ def main(args: argparse.Namespace) -> int:
         where = rec["path"]
         if rec.get("byte_range"):
             where += f" (bytes {rec['byte_range'][0]}-{rec['byte_range'][1]})"
-        print(f"  skipped: {where}: {rec['error']}", file=sys.stderr)
+        kept = rec.get("events_kept") or 0
+        note = f" ({kept} events read before the failure are kept)" if kept else ""
+        print(f"  skipped: {where}: {rec['error']}{note}", file=sys.stderr)
     if skipped:
         print(f"warning: {len(skipped)} work unit(s) skipped (--skip-bad); they are listed in "
               "provenance.json and results.json", file=sys.stderr)

@@ -49,7 +49,13 @@ from evtkin.run.forkserver import start_method as forkserver_start_method
 from evtkin.run.partial import PartialResult, merge_all
 from evtkin.run.plan import Plan
 from evtkin.run.progress import RunProgress
-from evtkin.run.units import WorkUnit, make_units, process_unit, sha256_of
+from evtkin.run.units import (
+    PartialUnitError,
+    WorkUnit,
+    make_units,
+    process_unit,
+    sha256_of,
+)
 
 __all__ = [
     "SMALL_INPUT_BYTES",
@@ -127,6 +133,11 @@ def run_unit(plan: Plan, unit: WorkUnit, read_threads: int | None = None,
     pid = os.getpid()
     try:
         res = process_unit(plan, unit, progress, read_threads=read_threads)
+    except PartialUnitError as exc:  # failed late: the chunks before the failure are kept
+        return UnitOutcome(unit.index, exc.result, str(exc), "PartialUnitError",
+                           n_events=exc.result.n_events(), seconds=time.perf_counter() - t0,
+                           pid=pid, peak_rss_mb=_peak_rss_mb(),
+                           cpu_seconds=time.process_time() - c0)
     except ConfigError as exc:
         return UnitOutcome(unit.index, None, str(exc), "ConfigError", True,
                            seconds=time.perf_counter() - t0, pid=pid)
@@ -671,7 +682,11 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
                     if oc.peak_rss_mb is not None:
                         peak[oc.pid] = max(peak.get(oc.pid, 0.0), oc.peak_rss_mb)
                     if oc.error is not None and skip_bad and not oc.fatal:
-                        skipped.append({**unit.describe(), "error": oc.error})
+                        kept = oc.result.n_events() if oc.result is not None else 0
+                        skipped.append({**unit.describe(), "error": oc.error,
+                                        "events_kept": kept})
+                        if oc.result is not None:  # the events read before the failure
+                            results[oc.index] = oc.result
                         continue
                     results[oc.index] = _check(oc, unit, len(units))
             finally:

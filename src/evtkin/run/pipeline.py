@@ -287,10 +287,12 @@ def run(
         raise ValueError(f"jobs must be a whole number >= 1, got {jobs!r}")
     cfg = config if isinstance(config, AnalysisConfig) else load_config(config)
     plan = build_plan(cfg, step_size=step_size, max_events=max_events)
-    if lenient:  # damaged LHE events are skipped with a warning (read_lhe(strict=False))
+    if lenient or skip_bad:
         import dataclasses
 
-        plan = dataclasses.replace(plan, lenient=True)
+        # lenient: damaged LHE events are skipped with a warning (read_lhe(strict=False));
+        # skip_bad: a unit whose input fails late keeps the events read before
+        plan = dataclasses.replace(plan, lenient=lenient, keep_partial=skip_bad)
     target = Path(out) if out is not None else cfg.output.directory
     lock = None
     if target is not None:  # checked and locked before any work

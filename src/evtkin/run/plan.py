@@ -57,6 +57,8 @@ class Plan:
     skim_dir: str | None = None
     #: read damaged inputs leniently (``read_lhe(strict=False)``: skip damaged events, warn)
     lenient: bool = False
+    #: a unit whose input fails after some chunks keeps them (``--skip-bad``)
+    keep_partial: bool = False
 
     @property
     def cutflow_rows(self) -> tuple[str, ...]:

@@ -26,7 +26,7 @@ from typing import Any
 import awkward as ak
 import numpy as np
 
-from evtkin.errors import ConfigError
+from evtkin.errors import ConfigError, EvtkinError
 from evtkin.run.checksums import sha256_of
 from evtkin.run.inputs import input_source
 from evtkin.run.inputs.lhe import lhe_byte_ranges
@@ -103,6 +103,15 @@ def _weights(chunk: Any) -> tuple[np.ndarray, np.ndarray]:
     return w0, wv
 
 
+class PartialUnitError(EvtkinError):
+    """A unit's input failed after some chunks were analysed (``plan.keep_partial``):
+    ``result`` holds those chunks."""
+
+    def __init__(self, message: str, result: PartialResult) -> None:
+        super().__init__(message)
+        self.result = result
+
+
 def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *,
                  read_threads: int | None = None) -> PartialResult:
     """Read and analyse one unit; return its partial result (the one unit loop of every
@@ -127,8 +136,21 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     n_total = 0
     n_chunks = 0
     t0 = time.perf_counter()
+    failure: EvtkinError | None = None
+    chunks = reading.chunks()
     try:
-        for chunk in reading.chunks():
+        while True:
+            try:
+                chunk = next(chunks, None)
+            except ConfigError:
+                raise
+            except EvtkinError as exc:
+                if not plan.keep_partial:
+                    raise
+                failure = exc  # keep the chunks analysed so far (--skip-bad)
+                break
+            if chunk is None:
+                break
             t1 = time.perf_counter()
             seconds["read"] += t1 - t0
             if variations is None:
@@ -174,6 +196,8 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
         reading.file_info(n_total),
     )
     result.seconds = seconds
+    if failure is not None:
+        raise PartialUnitError(str(failure), result)
     return result
 
 
