@@ -197,6 +197,8 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     )
     result.seconds = seconds
     if failure is not None:
+        if n_total == 0:
+            raise failure  # nothing read: the unit is skipped as a whole
         raise PartialUnitError(str(failure), result)
     return result
 
