@@ -75,5 +75,6 @@ def test_results_root_keys(tmp_path: Path) -> None:
     path = write_results_root(tmp_path, res)
     keys = set(read_root(path))
     assert root_key("tt toy", "top pt") == "tt_toy__top_pt"
-    assert keys == {"tt_toy__top_pt", "tt_toy__top_pt__pdf_up", "tt_toy__top_pt__pdf_down"}
+    assert keys == {"tt_toy__top_pt", "tt_toy__top_pt__pdf_up", "tt_toy__top_pt__pdf_down",
+                    "tt_toy__top_pt__entries"}  # the raw fills per bin
     assert not list(tmp_path.glob(".*.tmp"))

@@ -107,10 +107,15 @@ def test_bad_weight_expressions_name_the_line(tmp_path: Path, ntuple) -> None:  
 def test_every_histogram_counts_its_raw_entries_per_bin(ntuple, tmp_path) -> None:  # type: ignore[no-untyped-def]
     from evtkin.output.tables import load_results
 
-    res = run(config([ntuple], analysis={"weight": "0.3"}), out=tmp_path / "out")
+    res = run(config([ntuple], analysis={"weight": "0.3"}, output={"formats": ["json", "root"]}),
+              out=tmp_path / "out")
     h = load_results(tmp_path / "out").samples["s"].histograms["n_jets"]
     nominal = res["s"]["n_jets"]
     assert h.counts is not None
     assert int(h.counts.sum()) == h.entries == res.samples["s"].cutflow[-1]["n_raw"]
     # every count is a whole number of fills, whatever the weights
     assert np.all((h.counts > 0) == (nominal.values(flow=True) != 0))
+    from evtkin.output.rootfile import read_root
+
+    root = read_root(tmp_path / "out" / "histograms.root")["s__n_jets__entries"]
+    assert np.array_equal(root["values"], h.counts)

@@ -1,7 +1,8 @@
 """ROOT output: TH1D/TH2D with Σw² (``fSumw2``) and flow bins, written through uproot.
 
-Keys are flat: ``<sample>__<hist>`` for the nominal and ``<sample>__<hist>__<band>_up`` /
-``..._down`` for band edges (zero variances). The histogram title is the title; axis titles carry
+Keys are flat: ``<sample>__<hist>`` for the nominal, ``<sample>__<hist>__<band>_up`` /
+``..._down`` for band edges (zero variances) and ``<sample>__<hist>__entries`` for the raw number
+of fills per bin (variances = the counts). The histogram title is the title; axis titles carry
 labels and units (y/z: the normalised quantity).
 The file is written under a temporary name and renamed.
 """
@@ -81,6 +82,10 @@ def write_root(path: str | os.PathLike[str], objects: Mapping[str, HistResult],
     with atomic_path(p) as tmp, uproot.recreate(tmp) as f:
         for key, h in objects.items():
             f[key] = th_object(key, h)
+            counts = getattr(h, "counts", None)
+            if counts is not None:
+                n = np.asarray(counts, dtype=np.float64)
+                f[f"{key}__entries"] = th_object(f"{key}__entries", h, n, n)
             if with_bands:
                 zero = np.zeros_like(h.values)
                 for bname, b in h.bands.items():
