@@ -48,3 +48,37 @@ def test_info_on_bad_file_is_a_clean_error(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "notes.txt" in err
     assert "not an LHE file" in err
+
+
+HEPMC = b"""HepMC::Version 3.02.00
+HepMC::Asciiv3-START_EVENT_LISTING
+W nominal muR2
+T toygen\\|1.0\\|toy data
+E 1 1 3
+U MEV MM
+W 1 2
+A 0 GenCrossSection 12.5 0.5
+P 1 0 11 0 0 1 1 0 4
+P 2 0 -11 0 0 -1 1 0 4
+V -1 0 [1,2]
+P 3 -1 22 0 0 0 2 0 1
+HepMC::Asciiv3-END_EVENT_LISTING
+"""
+
+
+def test_info_hepmc(tmp_path, capsys):
+    path = tmp_path / "ev.dat"  # the format comes from the content
+    path.write_bytes(gzip.compress(HEPMC))
+    assert main(["info", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "HepMC       Asciiv3 (version 3.02.00)" in out
+    assert "units       MEV, MM" in out
+    assert "12.5 ± 0.5 pb" in out
+    assert "weights     2: nominal, muR2" in out
+    assert "events      1" in out
+    assert main(["info", str(path), "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["form"] == "Asciiv3"
+    assert d["n_events"] == 1
+    assert d["compression"] == "gzip"
+    assert d["tools"] == ["toygen | 1.0 | toy data"]

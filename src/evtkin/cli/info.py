@@ -1,4 +1,5 @@
-"""``evtkin info FILE [--json]``: what an LHE file declares, and how many events it holds."""
+"""``evtkin info FILE [--json]``: what an LHE or HepMC file declares, and how many events it
+holds (the format comes from the content)."""
 
 from __future__ import annotations
 
@@ -121,7 +122,54 @@ def render(d: dict[str, Any]) -> str:
     return "\n".join(lines)
 
 
+def is_hepmc(path: str) -> bool:
+    """Whether the decompressed file starts (after blank lines) with a ``HepMC::`` line."""
+    from evtkin.io.hepmc_header import open_stream
+
+    with open_stream(path) as fh:
+        head = fh.read(4096)
+    return head.lstrip().startswith(b"HepMC::")
+
+
+def hepmc_summary(path: str, *, count: bool = True) -> dict[str, Any]:
+    """The JSON form of ``evtkin info`` for a HepMC file."""
+    from evtkin.io.hepmc_header import hepmc_info
+
+    d = hepmc_info(path, count=count).to_dict()
+    d["format"] = "HepMC"
+    d["compression"] = detect_compression(path) or "none"
+    d["file_bytes"] = compressed_size(path)
+    return d
+
+
+def render_hepmc(d: dict[str, Any]) -> str:
+    xs = d["xsec_pb"]
+    lines = [
+        f"file        {d['source']}  ({_human_size(d['file_bytes'])}, "
+        f"compression: {d['compression']})",
+        f"HepMC       {d['form']} (version {d['version'] or '?'})",
+        f"units       {d['momentum_unit']}, {d['length_unit']} (read as GeV, mm)",
+        "cross sect. " + (f"{xs:.6g} ± {d['xsec_err_pb']:.3g} pb (first event that has one)"
+                          if xs is not None else "none in the first events"),
+    ]  # fmt: skip
+    for tool in d["tools"]:
+        lines.append(f"tool        {tool}")
+    for key, value in d["attributes"].items():
+        lines.append(f"attribute   {key} = {value}")
+    names = d["weight_names"]
+    lines.append(f"weights     {len(names)}" + (f": {', '.join(names[:10])}" if names else ""))
+    if len(names) > 10:
+        lines[-1] += f", ... ({len(names) - 10} more)"
+    if d["n_events"] is not None:
+        lines.append(f"events      {d['n_events']}")
+    return "\n".join(lines)
+
+
 def run(args: argparse.Namespace) -> int:
+    if is_hepmc(args.file):
+        d = hepmc_summary(args.file, count=not args.no_count)
+        print(json.dumps(d, indent=2) if args.json else render_hepmc(d))
+        return 0
     d = summary(args.file, count=not args.no_count)
     if args.json:
         print(json.dumps(d, indent=2))
@@ -133,12 +181,13 @@ def run(args: argparse.Namespace) -> int:
 def add_parser(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "info",
-        help="summarise an LHE file: beams, processes, cross sections, weights, events",
+        help="summarise an LHE or HepMC file: beams, processes, cross sections, weights, events",
         description="Summarise an LHE file (plain or compressed): beams, sqrt(s), processes "
         "with their cross sections, weighting mode, variation weights by group, event count "
-        "and file size.",
+        "and file size. For a HepMC ASCII file (Asciiv3 or IO_GenEvent, told apart by its "
+        "content): its form, units, cross section, tools, weight names and event count.",
     )
-    p.add_argument("file", help="LHE file (.lhe, gzip, zstd, bz2 or xz)")
+    p.add_argument("file", help="LHE or HepMC file (plain, gzip, zstd, bz2 or xz)")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.add_argument(
         "--no-count", action="store_true", help="do not read the file to count its events"

@@ -1,0 +1,122 @@
+"""The compiled HepMC scanner and the Python fallback agree: same columns, statuses, error
+positions and skipped events, on random valid and damaged event text (property-based)."""
+
+from __future__ import annotations
+
+import tempfile
+from pathlib import Path
+
+import awkward as ak
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import evtkin
+from evtkin.io import hepmc_scan as c
+from evtkin.io.hepmc import Parsed, scan_buffer
+from evtkin.io.hepmc_fallback import scan_py
+from hepmc_textgen import random_events
+
+KERNEL = c.compiled_kernel()
+pytestmark = pytest.mark.skipif(KERNEL is None, reason="numba is not available")
+
+
+def _text(form: str, seed: int, n: int) -> bytes:
+    ev = random_events(n, seed=seed, grouped=form == "IO_GenEvent")
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "t.hepmc"
+        evtkin.write_hepmc(path, ev, form=form, weight_names=("a", "b"),
+                           precision=[None, 6, 17][seed % 3])  # fmt: skip
+        data = path.read_bytes()
+    return data[data.index(b"\nE ") + 1 :]
+
+
+TEXTS = {(form, s): _text(form, s, 6) for form in ("Asciiv3", "IO_GenEvent") for s in range(3)}
+
+_JUNK = [b" ", b"\n", b"x", b"-", b"1", b".", b"e", b"@", b"[", b",", b"]", b"\r", b"E ",
+         b"P ", b"V ", b"99999999999999999999", b"0", b"\t", b"HepMC::x\n", b"1e400",
+         b"-1", b"U MEV CM\n", b"A 0 alphaQCD 0.1\n", b"\x00", b"\xff"]  # fmt: skip
+
+
+@st.composite
+def damaged(draw: st.DrawFn) -> tuple[int, bytes]:
+    form = draw(st.sampled_from(["Asciiv3", "IO_GenEvent"]))
+    text = bytearray(TEXTS[(form, draw(st.integers(0, 2)))])
+    for _ in range(draw(st.integers(0, 4))):
+        kind = draw(st.integers(0, 4))
+        at = draw(st.integers(0, len(text)))
+        if kind == 0 and len(text) > 1:  # delete a few bytes
+            del text[at : at + draw(st.integers(1, 12))]
+        elif kind == 1:  # insert junk
+            text[at:at] = draw(st.sampled_from(_JUNK))
+        elif kind == 2:  # swap two lines
+            lines = bytes(text).split(b"\n")
+            i, j = draw(st.integers(0, len(lines) - 1)), draw(st.integers(0, len(lines) - 1))
+            lines[i], lines[j] = lines[j], lines[i]
+            text = bytearray(b"\n".join(lines))
+        elif kind == 3:  # cut short
+            text = text[:at]
+        else:  # change a digit
+            digits = [k for k in range(len(text)) if 48 <= text[k] <= 57]
+            if digits:
+                text[digits[at % len(digits)]] = 48 + draw(st.integers(0, 9))
+    return (3 if form == "Asciiv3" else 2), bytes(text)
+
+
+def _compare(a: Parsed, b: Parsed) -> None:
+    for name in ("status", "errpos", "a", "b", "n_ev", "n_done"):
+        assert getattr(a, name) == getattr(b, name), name
+    if a.status < c.ERR_LINE:
+        assert a.pos == b.pos
+    np.testing.assert_array_equal(a.errs, b.errs)
+    for name in ("ev_i", "ev_f", "wts", "p_off", "v_off", "p_i", "p_f", "v_i", "v_f"):
+        x, y = getattr(a, name), getattr(b, name)
+        assert x.shape == y.shape, name
+        # bit-identical floats (NaN where absent on both sides)
+        np.testing.assert_array_equal(x.view(np.int64) if x.dtype == np.float64 else x,
+                                      y.view(np.int64) if y.dtype == np.float64 else y,
+                                      err_msg=name)  # fmt: skip
+
+
+@settings(max_examples=250, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow])  # fmt: skip
+@given(damaged(), st.booleans(), st.integers(0, 3))
+def test_scanners_agree(case: tuple[int, bytes], lenient: bool, stop_at: int) -> None:
+    form, text = case
+    arr = np.frombuffer(text, np.uint8)
+    stop = 1 << 62 if stop_at == 0 else len(text) * stop_at // 4
+    for final in (True, False):
+        a = scan_buffer(KERNEL, arr, form, 2, final, stop, lenient)
+        b = scan_buffer(scan_py, arr, form, 2, final, stop, lenient)
+        _compare(a, b)
+
+
+@pytest.mark.parametrize("key", sorted(TEXTS))
+def test_valid_text_reads_whole(key: tuple[str, int]) -> None:
+    text = TEXTS[key]
+    form = 3 if key[0] == "Asciiv3" else 2
+    arr = np.frombuffer(text, np.uint8)
+    a = scan_buffer(KERNEL, arr, form, 2, True, 1 << 62, False)
+    b = scan_buffer(scan_py, arr, form, 2, True, 1 << 62, False)
+    _compare(a, b)
+    assert a.status == c.ST_END
+    assert a.n_ev == 6
+
+
+def test_float_tokens_exact() -> None:
+    # correctly rounded like Python's float(): fast path and slow path (>18 digits, big
+    # exponents) alike (IEEE 754 round-to-nearest, as CPython's float() does)
+    rng = np.random.default_rng(3)
+    vals = np.concatenate([rng.normal(0, 1e3, 200), 10.0 ** rng.uniform(-30, 30, 200)])
+    toks = [repr(float(x)) for x in vals] + [f"{x:.6e}" for x in vals[:50]]
+    toks += ["0.1", "-0.0", "1e22", "1e23", "9007199254740993", "123456789012345678901",
+             ".5", "5.", "+1.5E+02", "4.9e-324", "1e-400", "1e400"]  # fmt: skip
+    lines = [f"P {i + 1} 0 22 {t} 0 0 0 0 1" for i, t in enumerate(toks)]
+    text = (f"E 1 0 {len(toks)}\nU GEV MM\nW 1 2\n" + "\n".join(lines) + "\n").encode()
+    arr = np.frombuffer(text, np.uint8)
+    got = scan_buffer(KERNEL, arr, 3, 2, True, 1 << 62, False)
+    assert got.status == c.ST_OK
+    assert got.p_f[0].tolist() == [float(t) for t in toks]
+    assert ak.Array(got.p_f[0]).tolist() == scan_buffer(scan_py, arr, 3, 2, True, 1 << 62,
+                                                        False).p_f[0].tolist()  # fmt: skip
