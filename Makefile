@@ -37,6 +37,8 @@ samples: $(STAMP)
 	$(VENV)/bin/evtkin toy deformed -n 5000  --seed 1302 --precision 10 --deform-lambda 1000 -o samples/toy_ttbar_deformed.lhe.gz
 	$(VENV)/bin/evtkin toy drellyan -n 8000  --seed 1303 --precision 10 -o samples/toy_drellyan.lhe.gz
 	$(VENV)/bin/evtkin toy ntuple   -n 20000 --seed 1304 -o samples/toy_ttbar_reco.root
+	$(VENV)/bin/evtkin toy shower samples/toy_ttbar.lhe.gz    -n 250 --seed 1501 -o samples/toy_ttbar_shower.hepmc.gz
+	$(VENV)/bin/evtkin toy shower samples/toy_drellyan.lhe.gz -n 100 --seed 1502 -o samples/toy_drellyan_shower.hepmc.gz
 
 clean:
 	rm -rf $(VENV) build dist .pytest_cache .ruff_cache .mypy_cache demo-output

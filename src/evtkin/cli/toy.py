@@ -12,18 +12,25 @@ DEFAULT_OUTPUT = {
     "deformed": "toy_ttbar_deformed.lhe.gz",
     "drellyan": "toy_drellyan.lhe.gz",
     "ntuple": "toy_ttbar_reco.root",
+    "shower": "toy_shower.hepmc.gz",
 }
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:  # type: ignore[type-arg]
     p = subparsers.add_parser(
         "toy",
-        help="write seeded toy samples (LHE v3 files, a detector-level ROOT ntuple)",
+        help="write seeded toy samples (LHE v3 files, a detector-level ROOT ntuple, "
+        "particle-level HepMC events)",
         description="Write seeded toy samples for demos and tests. They are toy data, "
-        "not physics predictions; every file says so in its header.",
+        "not physics predictions; every file says so in its header. "
+        "'evtkin toy shower INPUT.lhe[.gz] -o OUTPUT.hepmc[.gz]' turns the events of an LHE "
+        "file into particle-level events (toy shower, hadronisation, decays; HepMC Asciiv3).",
     )
     p.add_argument("sample", choices=sorted(DEFAULT_OUTPUT), help="which sample to write")
-    p.add_argument("-n", "--events", type=int, default=20_000, help="number of events")
+    p.add_argument("input", nargs="?", default=None,
+                   help="shower: the LHE file whose events are showered")  # fmt: skip
+    p.add_argument("-n", "--events", type=int, default=None,
+                   help="number of events (default 20000; shower: every event of the input)")
     p.add_argument("--seed", type=int, default=1, help="random seed (same seed, same file)")
     p.add_argument("--sqrt-s", type=float, default=13000.0, help="collider energy in GeV")
     p.add_argument("--weights", choices=("unweighted", "weighted", "negative"),
@@ -50,10 +57,16 @@ def run(args: argparse.Namespace) -> int:
     from evtkin.toy import samples
     from evtkin.toy.ttbar import Deformation
 
-    if args.events <= 0:
+    if args.events is not None and args.events <= 0:
         raise EvtkinError(f"--events must be positive, got {args.events}")
     out = args.output or DEFAULT_OUTPUT[args.sample]
     t0 = time.perf_counter()
+    if args.sample == "shower":
+        return _shower(args, out, t0)
+    if args.input is not None:
+        raise EvtkinError(f"'evtkin toy {args.sample}' takes no input file (got {args.input!r})")
+    if args.events is None:
+        args.events = 20_000
     try:
         if args.sample == "ntuple":
             n = samples.write_ntuple_sample(out, args.events, seed=args.seed, sqrt_s=args.sqrt_s,
@@ -77,4 +90,21 @@ def run(args: argparse.Namespace) -> int:
     sigma = sum(p.xsec_pb for p in info.processes)
     print(f"wrote {args.events} events to {out} (toy data; sigma = {sigma:.4g} pb, "
           f"IDWTUP = {info.weighting}) in {time.perf_counter() - t0:.1f} s")  # fmt: skip
+    return 0
+
+
+def _shower(args: argparse.Namespace, out: str, t0: float) -> int:
+    import os
+
+    from evtkin.toy.shower import write_shower
+
+    if args.input is None:
+        raise EvtkinError("evtkin toy shower needs an input LHE file: "
+                          "evtkin toy shower INPUT.lhe[.gz] -o OUTPUT.hepmc[.gz]")  # fmt: skip
+    if not os.path.exists(args.input):
+        raise EvtkinError(f"{args.input}: no such file")
+    precision = 8 if args.precision is None else args.precision
+    n = write_shower(args.input, out, seed=args.seed, n_events=args.events, precision=precision)
+    print(f"wrote {n} particle-level events to {out} (toy data) in "
+          f"{time.perf_counter() - t0:.1f} s")  # fmt: skip
     return 0
