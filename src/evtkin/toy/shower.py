@@ -513,7 +513,7 @@ def write_shower(lhe_path: str, out_path: str, *, seed: int, n_events: int | Non
     returns the number of events written."""
     import os
 
-    from evtkin import __version__
+    from evtkin._version import __version__
     from evtkin.io.hepmc_write import write_hepmc
 
     info, chunks = shower_events(lhe_path, seed=seed, n_events=n_events)
