@@ -13,7 +13,8 @@ contract:
 * both scanners give the same verdict (both raise, or both deliver the same events);
 * every intact event (its text unchanged and not inside a comment) is delivered, with
   its own values, when the strict read passes and always by the lenient read;
-* a strict read that passes delivers the same events as the lenient read.
+* a strict read that passes delivers the same events as the lenient read, and as many as
+  ``evtkin info`` counts.
 """
 
 from __future__ import annotations
@@ -257,6 +258,13 @@ def check(text: str, events: list[str], workdir: str, max_seconds: float = math.
             problems.append(f"strict={strict}: the scanners deliver different events")
         elif len(a.warnings) != len(b.warnings):
             problems.append(f"strict={strict}: warnings differ: {a.warnings} / {b.warnings}")
+    if outs["numba", True].kind == "ok":  # the event count of evtkin info agrees
+        from evtkin.cli.info import count_events
+
+        n = count_events(path)
+        if n != len(outs["numba", True].records):
+            problems.append(f"count: evtkin info counts {n} events, read_lhe delivers "
+                            f"{len(outs['numba', True].records)}")
     for scanner in ("numba", "fallback"):
         s, le = outs[scanner, True], outs[scanner, False]
         if s.kind == "ok" and le.kind == "ok" and s.records != le.records:
