@@ -21,7 +21,7 @@ has none; in IO_GenEvent files the unset value -1 of scale and couplings reads a
 
 Chunk size: ``step_size`` events, or, by default, as many events as fit in about
 ``CHUNK_TEXT_BYTES`` of text judged from the first buffer (showered events are large:
-a chunk of a 20 kB-per-event file then holds ~3 000 events and ~60 MB of columns), at
+a chunk of a 20 kB-per-event file then holds ~800 events and ~20 MB of columns), at
 most 100 000. Memory is the interpreter and libraries, a few buffers and their columns,
 and two chunks: flat in the file size.
 """
@@ -58,7 +58,7 @@ from evtkin.io.sources import Source, source_name
 __all__ = ["HepMCWarning", "hepmc_byte_ranges", "read_hepmc", "scanner_kind"]
 
 BUFFER_BYTES = 4 << 20
-CHUNK_TEXT_BYTES = 48 << 20
+CHUNK_TEXT_BYTES = 16 << 20
 MAX_AUTO_STEP = 100_000
 PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
                    "px", "py", "pz", "energy", "mass")  # fmt: skip
@@ -502,7 +502,7 @@ def read_hepmc(
     bz2 or xz; all detected by content) as awkward Arrays of ``step_size`` events.
 
     Every chunk holds exactly ``step_size`` events except the last. ``step_size=None``
-    (the default) takes as many events as fit in ~48 MB of text, judged from the first
+    (the default) takes as many events as fit in ~16 MB of text, judged from the first
     4 MB read (at most 100 000). ``threads``: parse threads (default 2 where there are
     cores for them, 1 for a compressed file on 2 cores) beside a thread that reads;
     ``threads=0`` does everything in the caller's thread. ``byte_range=(start, stop)``
