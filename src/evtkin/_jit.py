@@ -19,7 +19,7 @@ from __future__ import annotations
 import contextlib
 import functools
 from collections.abc import Callable, Iterator
-from typing import Any, TypeVar
+from typing import Any, TypeVar, cast
 
 __all__ = [
     "deferred_extensions",
@@ -75,8 +75,8 @@ def lean_compile() -> Iterator[None]:
         yield
         return
 
-    by_context = BaseContext.resolve_function_type
-    by_function = types.Function.get_call_type  # (defined by its base class)
+    by_context: Callable[..., Any] = BaseContext.resolve_function_type
+    by_function: Callable[..., Any] = types.Function.get_call_type  # (from its base class)
     own = "get_call_type" in vars(types.Function)
     memo: dict[Any, Any] = {}
 
@@ -126,7 +126,8 @@ def lean_pipeline() -> Any:
 
     class LeanCompiler(CompilerBase):  # type: ignore[misc]
         def define_pipelines(self) -> list[Any]:
-            pm = DefaultPassBuilder.define_nopython_pipeline(self.state)
+            define: Callable[..., Any] = DefaultPassBuilder.define_nopython_pipeline
+            pm = define(self.state)
             pm.passes = [entry for entry in pm.passes if entry[0].name() not in skipped]
             pm.finalize()
             return [pm]
@@ -139,7 +140,7 @@ def plain(**options: Any) -> Callable[[F], F]:
     from numba import njit
 
     def wrap(fn: F) -> F:
-        return njit(nogil=True, cache=True, **options)(fn)  # type: ignore[no-any-return]
+        return cast(F, njit(nogil=True, cache=True, **options)(fn))
 
     return wrap
 
@@ -170,7 +171,7 @@ def kernel(**options: Any) -> Callable[[F], F]:
     from numba import njit
 
     def wrap(fn: F) -> F:
-        wrapped = first_call_deferred(njit(nogil=True, cache=True, **options)(fn))
+        wrapped = first_call_deferred(cast(F, njit(nogil=True, cache=True, **options)(fn)))
         wrapped.py_func = fn  # type: ignore[attr-defined]
         return wrapped
 

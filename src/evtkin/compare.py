@@ -282,7 +282,8 @@ def is_unweighted(values: ArrayLike, variances: ArrayLike) -> bool:
 
 def _n_eff(w: FArray, s2: FArray, counts: bool) -> FArray:
     if counts:
-        return w.copy()
+        out: np.ndarray = w.copy()
+        return out
     with np.errstate(divide="ignore", invalid="ignore"):
         ne = np.where((s2 > 0) & (w > 0), w * w / np.where(s2 > 0, s2, 1.0), 0.0)
     return ne
@@ -315,7 +316,8 @@ def _sum_groups(x: FArray, groups: list[list[int]]) -> FArray:
 def _stat_ww(w1: FArray, s1: FArray, w2: FArray, s2: FArray) -> FArray:
     t1, t2 = w1.sum(), w2.sum()
     # closed form of the minimisation over p_i, Gagunashvili 2010 / REFERENCES §2.9
-    return (t1 * w2 - t2 * w1) ** 2 / (t1 * t1 * s2 + t2 * t2 * s1)
+    out: np.ndarray = (t1 * w2 - t2 * w1) ** 2 / (t1 * t1 * s2 + t2 * t2 * s1)
+    return out
 
 
 def _stat_uw(n: FArray, w: FArray, s2: FArray) -> FArray:
@@ -326,12 +328,14 @@ def _stat_uw(n: FArray, w: FArray, s2: FArray) -> FArray:
         # (n - N p)²/(N p); for n = 0 its limit is N p (finite also when p = 0)
         t1 = np.where(n > 0, (n - big_n * p) ** 2 / (big_n * p), big_n * p)
     t2 = (w - big_w * p) ** 2 / s2
-    return t1 + t2
+    out: np.ndarray = t1 + t2
+    return out
 
 
 def _stat_uu(n: FArray, m: FArray) -> FArray:
     big_n, big_m = n.sum(), m.sum()
-    return (big_m * n - big_n * m) ** 2 / (n + m) / (big_n * big_m)
+    out: np.ndarray = (big_m * n - big_n * m) ** 2 / (n + m) / (big_n * big_m)
+    return out
 
 
 def chi2_weighted(

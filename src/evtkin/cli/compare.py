@@ -82,7 +82,8 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         help="processes drawing the plots (default: every available core; 1: this process only)",
     )
     p.set_defaults(func=run)
-    return p
+    out: argparse.ArgumentParser = p
+    return out
 
 
 def run(args: argparse.Namespace) -> int:

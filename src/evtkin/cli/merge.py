@@ -23,7 +23,8 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     p.add_argument("folders", metavar="RESULTS_FOLDER", nargs="+",
                    help="results folders of 'evtkin run' (each holds partial.npz)")
     p.set_defaults(func=main)
-    return p
+    out: argparse.ArgumentParser = p
+    return out
 
 
 def main(args: argparse.Namespace) -> int:

@@ -64,7 +64,8 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                        "dealt out by size; for batch jobs): merge the N results folders with "
                        "'evtkin merge OUT FOLDER...'")
     p.set_defaults(func=main)
-    return p
+    out: argparse.ArgumentParser = p
+    return out
 
 
 def main(args: argparse.Namespace) -> int:

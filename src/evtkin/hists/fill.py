@@ -234,10 +234,14 @@ def _lut_cached(edges_t: tuple[float, ...]) -> tuple[np.ndarray, float]:
     return lut, float(scale)
 
 
+#: the kernels' array arguments (annotations only: numba types the calls itself)
+Arr = np.ndarray
+
 if _HAVE_NUMBA:
 
     @kernel()
-    def _index_regular_nb(x, n, lo, delta, out, mult, accumulate):  # type: ignore[no-untyped-def]
+    def _index_regular_nb(x: Arr, n: int, lo: float, delta: float, out: Arr, mult: int,
+                          accumulate: bool) -> None:
         for i in range(x.size):
             z = (x[i] - lo) / delta
             if z < 1.0:  # noqa: SIM108 (kept readable: mirrors the boost formula)
@@ -250,7 +254,8 @@ if _HAVE_NUMBA:
                 out[i] = k * mult
 
     @kernel()
-    def _index_variable_nb(x, edges, lut, scale, out, mult, accumulate):  # type: ignore[no-untyped-def]
+    def _index_variable_nb(x: Arr, edges: Arr, lut: Arr, scale: float, out: Arr, mult: int,
+                           accumulate: bool) -> None:
         m = edges.size
         lo = edges[0]
         hi = edges[m - 1]
@@ -280,7 +285,8 @@ if _HAVE_NUMBA:
                 out[i] = k * mult
 
     @kernel()
-    def _accumulate_nb(gidx, grows, rowflag, starts, w0, wv, src, out):  # type: ignore[no-untyped-def]
+    def _accumulate_nb(gidx: Arr, grows: Arr, rowflag: Arr, starts: Arr, w0: Arr, wv: Arr,
+                       src: Arr, out: Arr) -> None:
         # ``out`` is bin-major ``(n_bins, W)``: [Σw (1+V) | Σw² (1+V) | zero padding] per bin,
         # one contiguous row; ``src`` (length W) is scratch. Event-major loop: the extended
         # row [w, w²] of an event is built once (squares once per event, not once per event
@@ -323,7 +329,8 @@ if _HAVE_NUMBA:
                 ptr[h] = p
 
     @kernel()
-    def _accumulate_direct_nb(gidx, starts, w0, wv, src, out):  # type: ignore[no-untyped-def]
+    def _accumulate_direct_nb(gidx: Arr, starts: Arr, w0: Arr, wv: Arr, src: Arr,
+                              out: Arr) -> None:
         # _accumulate_nb when every histogram has one entry per weight row (entry r of
         # histogram h is gidx[starts[h] + r]): no row pointers to follow, ~5 % faster
         wide_vectors()
@@ -346,7 +353,8 @@ if _HAVE_NUMBA:
                     ov[c] += src[c]
 
     @kernel()
-    def _accumulate_nominal_nb(gidx, grows, rowflag, starts, w0, out):  # type: ignore[no-untyped-def]
+    def _accumulate_nominal_nb(gidx: Arr, grows: Arr, rowflag: Arr, starts: Arr, w0: Arr,
+                               out: Arr) -> None:
         # nominal weight only: histogram-major, two additions per entry
         for h in range(starts.size - 1):
             s0 = starts[h]

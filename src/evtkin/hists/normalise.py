@@ -44,7 +44,8 @@ def bin_volumes(spec: HistSpec) -> np.ndarray:
         per_axis.append(w)
     if spec.ndim == 1:
         return per_axis[0]
-    return np.multiply.outer(per_axis[0], per_axis[1])
+    out: np.ndarray = np.multiply.outer(per_axis[0], per_axis[1])
+    return out
 
 
 def _flow_mask(spec: HistSpec) -> np.ndarray:

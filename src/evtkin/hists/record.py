@@ -150,7 +150,8 @@ class HistRecord:
 
     def errors(self) -> np.ndarray:
         """sqrt(variance), flow included."""
-        return np.sqrt(np.clip(self.variances, 0.0, None))
+        out: np.ndarray = np.sqrt(np.clip(self.variances, 0.0, None))
+        return out
 
     @property
     def y_title(self) -> str:

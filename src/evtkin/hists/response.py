@@ -74,24 +74,28 @@ class Response:
     @property
     def misses(self) -> np.ndarray:
         """Per truth bin: generated there, not reconstructed (Σw)."""
-        return self.truth - self.matrix.sum(axis=1)
+        out: np.ndarray = self.truth - self.matrix.sum(axis=1)
+        return out
 
     @property
     def fakes(self) -> np.ndarray:
         """Per reconstructed bin: reconstructed there, not passing at generator level (Σw)."""
-        return self.reco - self.matrix.sum(axis=0)
+        out: np.ndarray = self.reco - self.matrix.sum(axis=0)
+        return out
 
     @property
     def efficiency(self) -> np.ndarray:
         """Per in-range truth bin: Σ_j matrix[i, j] / truth_i (NaN for an empty bin)."""
         with np.errstate(divide="ignore", invalid="ignore"):
-            return self.matrix.sum(axis=1)[1:-1] / self.truth[1:-1]
+            out: np.ndarray = self.matrix.sum(axis=1)[1:-1] / self.truth[1:-1]
+            return out
 
     @property
     def purity(self) -> np.ndarray:
         """Per in-range reconstructed bin: matrix[i, i] / reco_i (NaN for an empty bin)."""
         with np.errstate(divide="ignore", invalid="ignore"):
-            return np.diagonal(self.matrix)[1:-1] / self.reco[1:-1]
+            out: np.ndarray = np.diagonal(self.matrix)[1:-1] / self.reco[1:-1]
+            return out
 
     def to_dict(self) -> dict[str, Any]:
         def clean(a: np.ndarray) -> list[Any]:

@@ -280,7 +280,8 @@ class _OpenTree:
 
     def _find_tree(self, name: str | None) -> str:
         try:
-            classes = {k.rsplit(";", 1)[0]: v for k, v in self.file.classnames().items()}
+            classes: dict[str, str] = {
+                k.rsplit(";", 1)[0]: v for k, v in self.file.classnames().items()}
         except Exception as exc:
             raise NtupleError(
                 f"{self.path}: cannot read the file's directory ({_short(exc)}); the file is "

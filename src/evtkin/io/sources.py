@@ -41,7 +41,7 @@ __all__ = [
     "source_name",
 ]
 
-Source = str | os.PathLike
+Source = str | os.PathLike[str]
 
 _MAGIC: tuple[tuple[bytes, str], ...] = (
     (b"\x1f\x8b", "gzip"),

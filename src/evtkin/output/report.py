@@ -76,7 +76,9 @@ def _table(
     left: int = 1,
     row_class: Sequence[str] | None = None,
 ) -> str:
-    cls = lambda i: ' class="l"' if i < left else ""  # noqa: E731
+    def cls(i: int) -> str:
+        return ' class="l"' if i < left else ""
+
     out = ["<table><thead><tr>"]
     out += [f"<th{cls(i)}>{_e(h)}</th>" for i, h in enumerate(head)]
     out.append("</tr></thead><tbody>")
@@ -234,7 +236,8 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
 
 def _entry_png(cs: Any, e: Any, plot_comparison: Any) -> bytes:
     if cs.out and e.plot and (Path(cs.out) / e.plot).is_file():
-        return (Path(cs.out) / e.plot).read_bytes()
+        out: bytes = (Path(cs.out) / e.plot).read_bytes()
+        return out
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "plot.png"
         plot_comparison(e, path, note=cs.note)

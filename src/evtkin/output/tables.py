@@ -14,7 +14,7 @@ import io
 import json
 import math
 import os
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -237,7 +237,13 @@ def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "") -> str:
              f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"] for r in rows]
     widths = [max(len(x) for x in col) for col in zip(head, *body, strict=False)]
     lines = [title] if title else []
-    fmt = [lambda s, w: s.ljust(w)] + [lambda s, w: s.rjust(w)] * 5
+    def left(s: str, w: int) -> str:
+        return s.ljust(w)
+
+    def right(s: str, w: int) -> str:
+        return s.rjust(w)
+
+    fmt: list[Callable[[str, int], str]] = [left, right, right, right, right, right]
     for r in [head, *body]:
         lines.append("  ".join(f(x, w) for f, x, w in zip(fmt, r, widths, strict=True)))
         if r is head:

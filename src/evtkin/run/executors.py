@@ -33,7 +33,7 @@ import signal
 import threading
 import time
 import uuid
-from collections.abc import Collection, Iterator, Sequence
+from collections.abc import Callable, Collection, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol
 
@@ -406,7 +406,10 @@ class DaskExecutor(_Base):
 
     def __enter__(self) -> DaskExecutor:
         try:
-            from distributed import Client, LocalCluster
+            from distributed import Client as _Client
+            from distributed import LocalCluster
+
+            Client: Callable[..., Any] = _Client  # distributed is not fully annotated
         except ImportError as exc:
             raise EvtkinError(
                 "running on Dask needs the 'distributed' package: pip install 'evtkin[dask]'"
@@ -456,7 +459,9 @@ class DaskExecutor(_Base):
 
     def outcomes(self, plan: Plan, units: Sequence[WorkUnit],
                  progress: RunProgress | None = None) -> Iterator[UnitOutcome]:
-        from distributed import as_completed
+        from distributed import as_completed as _as_completed
+
+        as_completed: Callable[..., Any] = _as_completed
 
         client = self._client
         if client is None:
@@ -507,7 +512,9 @@ def _local_cluster(factory: Any, n_workers: int) -> Any:
     quiet = {"distributed.worker.profile.enabled": False}
     method = forkserver_start_method()
     if method == "forkserver":
-        from distributed.utils import get_mp_context
+        from distributed.utils import get_mp_context as _get_mp_context
+
+        get_mp_context: Callable[..., Any] = _get_mp_context
 
         with (dask.config.set({"distributed.worker.multiprocessing-method": method, **quiet}),
               main_kept_from_children()):

@@ -47,7 +47,8 @@ def _provenance_of(folder: Path) -> dict[str, Any]:
     cfg = data.get("config") if isinstance(data, dict) else None
     if not isinstance(cfg, dict) or not isinstance(cfg.get("text"), str):
         raise ResultsError(f"{path}: holds no config text")
-    return data
+    out: dict[str, Any] = data
+    return out
 
 
 def _config(prov: dict[str, Any]) -> AnalysisConfig:

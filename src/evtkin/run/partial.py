@@ -133,4 +133,5 @@ def merge_all(parts: Any) -> PartialResult:
         if len(items) % 2:
             nxt.append(items[-1])
         items = nxt
-    return items[0]
+    out: PartialResult = items[0]
+    return out

@@ -28,7 +28,8 @@ def _per_event(view: ChunkView, name: str, n: int) -> np.ndarray:
     spec = view.plan.config.histograms[name]
     v = view.evaluate(spec.axes[0].value, f"histograms.{name}.x")
     if not isinstance(v, ak.Array):
-        return np.broadcast_to(np.asarray(v, dtype=np.float64), (n,)).copy()
+        out: np.ndarray = np.broadcast_to(np.asarray(v, dtype=np.float64), (n,)).copy()
+        return out
     if v.ndim != 1 or ak.fields(v):
         raise ConfigError(
             f"{view.plan.config.source}: histograms.{name}.response: {spec.axes[0].value.text!r}"

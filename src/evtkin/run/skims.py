@@ -31,7 +31,7 @@ import awkward as ak
 import numpy as np
 
 from evtkin.errors import ConfigError
-from evtkin.output.tables import safe_name
+from evtkin.files import atomic_path, safe_name
 
 __all__ = ["PARTS", "assemble_skims", "skim_columns", "write_part"]
 
@@ -151,19 +151,17 @@ def _assemble_one(skim: Any, parts: Sequence[Path], base: Path,
             yield _scaled(ak.from_parquet(p), factor, weight_columns)
 
     if "parquet" in skim.formats:
-        tmp = pq.with_name(pq.name + ".tmp")
-        if parts:
-            ak.to_parquet_row_groups(scaled_parts(), tmp)
-        else:  # no selected event: an empty table with the declared columns
-            empty = {c: np.zeros(0) for c in (*skim.columns, "weight")}
-            ak.to_parquet(ak.zip(empty, depth_limit=1), tmp)
-        os.replace(tmp, pq)
+        with atomic_path(pq) as tmp:
+            if parts:
+                ak.to_parquet_row_groups(scaled_parts(), tmp)
+            else:  # no selected event: an empty table with the declared columns
+                empty = {c: np.zeros(0) for c in (*skim.columns, "weight")}
+                ak.to_parquet(ak.zip(empty, depth_limit=1), tmp)
         out.append(pq)
     if "root" in skim.formats:
         import uproot
 
-        tmp = rt.with_name(rt.name + ".tmp")
-        with uproot.recreate(tmp) as f:
+        with atomic_path(rt) as tmp, uproot.recreate(tmp) as f:
             if parts:
                 assert first is not None
                 types = _root_types(first, where)
@@ -172,6 +170,5 @@ def _assemble_one(skim: Any, parts: Sequence[Path], base: Path,
                     tree.extend({name: part[name] for name in types})
             else:
                 f.mktree(skim.name, {c: "float64" for c in (*skim.columns, "weight")})
-        os.replace(tmp, rt)
         out.append(rt)
     return out

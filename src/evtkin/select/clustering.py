@@ -97,7 +97,8 @@ def _dist2(y: np.ndarray, phi: np.ndarray, a: int, b: int) -> float:
     dphi = abs(phi[a] - phi[b])
     if dphi > math.pi:
         dphi = _TWO_PI - dphi
-    return dy * dy + dphi * dphi
+    out: float = dy * dy + dphi * dphi
+    return out
 
 
 @plain()

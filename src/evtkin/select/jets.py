@@ -40,7 +40,8 @@ def _kt2p(px: float, py: float, p: float) -> float:
         if p > 0.0:
             return 0.0
         return 1.0
-    return pt2**p
+    out: float = pt2**p
+    return out
 
 
 @plain()

@@ -61,14 +61,16 @@ def _children_flat(pm: np.ndarray, lo: np.ndarray, hi: np.ndarray, valid: np.nda
     """Flat: some mother in [lo, hi] is selected by the int mask ``pm`` (prefix-sum test)."""
     csum = np.zeros(pm.shape[0] + 1, dtype=np.int64)
     np.cumsum(pm, out=csum[1:])
-    return valid & (csum[hi + 1] - csum[lo] > 0)
+    out: np.ndarray = valid & (csum[hi + 1] - csum[lo] > 0)
+    return out
 
 
 def _flat_mask(mask: Array, n: int) -> np.ndarray:
     pm = ak.to_numpy(ak.flatten(ak.fill_none(mask, False), axis=1)).astype(np.int64)
     if pm.shape[0] != n:
         raise ValueError("the mask must have the same shape as the particles")
-    return pm
+    out: np.ndarray = pm
+    return out
 
 
 def children_of(particles: Array, parent_mask: Array) -> ak.Array:

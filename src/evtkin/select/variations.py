@@ -41,7 +41,8 @@ def _mix(z: np.ndarray) -> np.ndarray:
     with np.errstate(over="ignore"):
         z = (z ^ (z >> np.uint64(30))) * _C1
         z = (z ^ (z >> np.uint64(27))) * _C2
-        return z ^ (z >> np.uint64(31))
+        out: np.ndarray = z ^ (z >> np.uint64(31))
+        return out
 
 
 def _key(objs: Any, seed: int, salt: int) -> np.ndarray:
@@ -64,14 +65,16 @@ def _key(objs: Any, seed: int, salt: int) -> np.ndarray:
 def counter_uniform(objs: Any, seed: int, salt: int = 0) -> np.ndarray:
     """A uniform number in (0, 1) per object (flat, in object order), from the hash."""
     h = _key(objs, seed, salt)
-    return ((h >> np.uint64(11)).astype(np.float64) + 0.5) * (1.0 / 9007199254740992.0)
+    out: np.ndarray = ((h >> np.uint64(11)).astype(np.float64) + 0.5) * (1.0 / 9007199254740992.0)
+    return out
 
 
 def counter_normal(objs: Any, seed: int, salt: int = 0) -> np.ndarray:
     """A standard normal number per object (Box–Muller on two hashed uniforms)."""
     u1 = counter_uniform(objs, seed, 2 * salt + 1)
     u2 = counter_uniform(objs, seed, 2 * salt + 2)
-    return np.sqrt(-2.0 * np.log(u1)) * np.cos(2.0 * np.pi * u2)
+    out: np.ndarray = np.sqrt(-2.0 * np.log(u1)) * np.cos(2.0 * np.pi * u2)
+    return out
 
 
 def _times(objs: Any, factor: Any) -> Any:

@@ -59,7 +59,8 @@ LEP_PT_MIN = 10.0
 MET_RES = 0.5  # GeV^(1/2)
 
 
-def _kin(px: np.ndarray, py: np.ndarray, pz: np.ndarray, e: np.ndarray):
+def _kin(px: np.ndarray, py: np.ndarray, pz: np.ndarray, e: np.ndarray
+         ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     pt = np.hypot(px, py)
     p = np.sqrt(pt * pt + pz * pz)
     eta = np.arcsinh(pz / np.where(pt > 0, pt, 1e-300))
@@ -68,7 +69,8 @@ def _kin(px: np.ndarray, py: np.ndarray, pz: np.ndarray, e: np.ndarray):
     return pt, eta, phi, mass
 
 
-def _collection(counts_of: np.ndarray, n: int, fields: dict[str, np.ndarray], order: np.ndarray):
+def _collection(counts_of: np.ndarray, n: int, fields: dict[str, np.ndarray],
+                order: np.ndarray) -> ak.Array:
     """Jagged collection from flat per-object arrays (``counts_of`` = event index of each)."""
     counts = np.bincount(counts_of, minlength=n)
     rec = ak.unflatten(ak.zip({k: v[order] for k, v in fields.items()}), counts)

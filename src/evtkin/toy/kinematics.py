@@ -15,7 +15,8 @@ __all__ = [
 ]
 
 
-def two_body_momentum(m: np.ndarray | float, m1: np.ndarray | float, m2: np.ndarray | float):
+def two_body_momentum(m: np.ndarray | float, m1: np.ndarray | float, m2: np.ndarray | float
+                      ) -> np.ndarray:
     """Momentum of either daughter in the rest frame of ``m -> m1 + m2``.
 
     PDG review "Kinematics", two-body decays:
@@ -100,4 +101,5 @@ def sample_breit_wigner(
     t_hi = np.arctan((np.asarray(hi, dtype=np.float64) ** 2 - mass * mass) / mg)
     u = rng.random(n)
     s = mass * mass + mg * np.tan(t_lo + u * (t_hi - t_lo))
-    return np.sqrt(s)
+    out: np.ndarray = np.sqrt(s)
+    return out

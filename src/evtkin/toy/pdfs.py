@@ -44,7 +44,8 @@ def alpha_s(mu: np.ndarray | float, nf: int = 5) -> np.ndarray:
     """One-loop running alpha_s(mu) from alpha_s(m_Z) (textbook one-loop beta function)."""
     b0 = (33.0 - 2.0 * nf) / (12.0 * np.pi)
     mu = np.asarray(mu, dtype=np.float64)
-    return ALPHA_S_MZ / (1.0 + ALPHA_S_MZ * b0 * np.log(mu * mu / (M_Z * M_Z)))
+    out: np.ndarray = ALPHA_S_MZ / (1.0 + ALPHA_S_MZ * b0 * np.log(mu * mu / (M_Z * M_Z)))
+    return out
 
 
 @dataclass(frozen=True)

@@ -91,7 +91,8 @@ def _boost(p: np.ndarray, beta: np.ndarray) -> np.ndarray:
     """Boost four-vectors ``p`` (..., 4) by velocity ``beta`` (3,)."""
     b2 = float(beta @ beta)
     if b2 <= 0.0:
-        return p.copy()
+        out: np.ndarray = p.copy()
+        return out
     gamma = 1.0 / math.sqrt(1.0 - b2)
     bp = p[..., :3] @ beta
     g2 = (gamma - 1.0) / b2

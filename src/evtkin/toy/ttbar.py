@@ -32,6 +32,7 @@ mothers 0, 1); 4 W+ (2, mother 2); 5 b (1, mother 2); 6 W- (2, mother 3); 7 bbar
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import awkward as ak
 import numpy as np
@@ -73,21 +74,24 @@ def sigma_gg(shat: np.ndarray, a_s: np.ndarray | float, m: float = C.M_TOP) -> n
     )
 
 
-def dsigma_dt_qq(s: np.ndarray, t: np.ndarray, a_s: np.ndarray | float, m: float = C.M_TOP):
+def dsigma_dt_qq(s: np.ndarray, t: np.ndarray, a_s: np.ndarray | float, m: float = C.M_TOP
+                 ) -> np.ndarray:
     """dsigma/dt(q qbar -> Q Qbar) in GeV^-4 (Combridge 1979)."""
     m2 = m * m
     u = 2.0 * m2 - s - t
-    return 4.0 * np.pi * a_s**2 / (9.0 * s * s) * (
+    out: np.ndarray = 4.0 * np.pi * a_s**2 / (9.0 * s * s) * (
         ((m2 - t) ** 2 + (m2 - u) ** 2 + 2.0 * m2 * s) / (s * s)
     )
+    return out
 
 
-def dsigma_dt_gg(s: np.ndarray, t: np.ndarray, a_s: np.ndarray | float, m: float = C.M_TOP):
+def dsigma_dt_gg(s: np.ndarray, t: np.ndarray, a_s: np.ndarray | float, m: float = C.M_TOP
+                 ) -> np.ndarray:
     """dsigma/dt(g g -> Q Qbar) in GeV^-4 (Combridge 1979)."""
     m2 = m * m
     u = 2.0 * m2 - s - t
     t1, u1 = m2 - t, m2 - u
-    return np.pi * a_s**2 / (8.0 * s * s) * (
+    out: np.ndarray = np.pi * a_s**2 / (8.0 * s * s) * (
         6.0 * t1 * u1 / (s * s)
         - m2 * (s - 4.0 * m2) / (3.0 * t1 * u1)
         + 4.0 / 3.0 * (t1 * u1 - 2.0 * m2 * (m2 + t)) / (t1 * t1)
@@ -95,6 +99,7 @@ def dsigma_dt_gg(s: np.ndarray, t: np.ndarray, a_s: np.ndarray | float, m: float
         - 3.0 * (t1 * u1 + m2 * (u - t)) / (s * t1)
         - 3.0 * (t1 * u1 + m2 * (t - u)) / (s * u1)
     )
+    return out
 
 
 @dataclass(frozen=True)
@@ -245,7 +250,8 @@ def sample_cos_theta_star(rng: np.random.Generator, f0: np.ndarray, fl: np.ndarr
     return np.where(u < f0, c_long, np.where(u < f0 + fl, c_left, c_right))
 
 
-def _decay_top(rng: np.random.Generator, top: np.ndarray, m_top: np.ndarray, sign: int):
+def _decay_top(rng: np.random.Generator, top: np.ndarray, m_top: np.ndarray, sign: int
+               ) -> tuple[Any, ...]:
     """t -> W b, W -> f fbar' for t (sign +1) or tbar (sign -1); returns lab four-vectors."""
     n = len(m_top)
     w_hi = np.minimum(C.M_W + N_WINDOW * C.W_W, m_top - C.M_B - 1e-6)
@@ -269,7 +275,8 @@ def _decay_top(rng: np.random.Generator, top: np.ndarray, m_top: np.ndarray, sig
             id_down, id_up, m_down, m_up)  # fmt: skip
 
 
-def _w_decay_mode(rng: np.random.Generator, n: int, sign: int):
+def _w_decay_mode(rng: np.random.Generator, n: int, sign: int
+                  ) -> tuple[Any, Any, Any, np.ndarray]:
     """Pick the W decay (PDG 2024 branching ratios). Returns ids and masses of the down-type
     fermion (charged lepton / down-type quark, as antiparticle for W+) and its partner."""
     modes: list[tuple[int, int, float, float]] = []  # (down id for W-, up id for W-, m_d, prob)
