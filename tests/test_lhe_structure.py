@@ -124,6 +124,10 @@ CASES = {
         ev(1) + ev(2, "<scales a='1>\n") + ev(3),
         r"malformed tag: a '<' before its closing '>'", "<scales a=",
     ),
+    "comment left open inside a skipped block": (
+        ev(1) + ev(2, "<mgrwt>\n<!--<rscale> 2 0.1 </rscale>\n<</mgrwt>\n") + ev(3),
+        r"<mgrwt> is not closed inside its event", "<mgrwt>",
+    ),
     "an event inside an event": (
         ev(1) + ev(2).replace("</event>\n", "") + ev(3),
         r"<event> inside an event: the event is not closed", "<event>\n 2 3",

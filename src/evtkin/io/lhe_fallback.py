@@ -472,8 +472,21 @@ def _optional_part(
             continue
         # any other element: skip to its closing tag, inside the event
         close = re.compile(b"</" + re.escape(name) + rb"[ \t\r\n>]")
-        mc = close.search(data, pos)
-        mb = _BOUNDARY.search(data, pos)
+        while True:
+            mc = close.search(data, pos)
+            mb = _BOUNDARY.search(data, pos)
+            cm = data.find(b"<!--", pos)
+            first = min(x for x in (mc.start() if mc else n, mb.start() if mb else n,
+                                    cm if cm >= 0 else n))
+            if cm >= 0 and cm == first and cm + 3 < n:  # a comment inside: skipped whole
+                kind, gt, _s, _e = _tag(data, cm, n, True)
+                if kind == -3:
+                    raise _fail(st, ERR_UNCLOSED, t0, ns, ne)
+                if gt >= n:
+                    raise _Stop(ST_INCOMPLETE)
+                pos = gt + 1
+                continue
+            break
         if mb is not None and (mc is None or mb.start() < mc.start()):
             raise _fail(st, ERR_UNCLOSED, t0, ns, ne)
         if mc is None:

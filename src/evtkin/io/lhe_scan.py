@@ -375,6 +375,18 @@ def _skip_element(buf, pos, n, ns, nlen):
     inside its event."""
     while pos < n:
         if buf[U(pos)] == 60:
+            if pos + 3 < n and buf[U(pos + 1)] == 33 and buf[U(pos + 2)] == 45 and (
+                buf[U(pos + 3)] == 45
+            ):
+                # a comment inside the element: skipped whole; one that holds an event
+                # boundary does not close inside the event
+                ne, gt, _s, _e = _tag_scan(buf, pos, n, True)
+                if ne == -3:
+                    return -2
+                if gt >= n:
+                    return -1
+                pos = gt + 1
+                continue
             if pos + nlen + 2 < n and buf[U(pos + 1)] == 47:
                 same = True
                 for t in range(nlen):
