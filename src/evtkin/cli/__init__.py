@@ -15,7 +15,7 @@ from evtkin._version import __version__
 from evtkin.errors import EvtkinError
 
 # command modules, in the order --help lists them
-COMMANDS: list[str] = ["info", "run", "merge", "compare", "toy", "inspect"]
+COMMANDS: list[str] = ["info", "run", "plot", "merge", "compare", "toy", "inspect"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -196,9 +196,9 @@ def _axis_label(hr: Any) -> str:
 def _y_label(hr: Any, shape_only: bool) -> str:
     if shape_only:
         if hr.normalisation != "xsec_per_bin":
-            return "fraction"
+            return "Fraction per bin"
         ax = hr.axes[0]
-        return f"fraction per {ax.unit}" if getattr(ax, "unit", "") else "fraction per unit"
+        return f"Fraction per {ax.unit}" if getattr(ax, "unit", "") else "Fraction per unit"
     text = hr.y_label or ""
     return f"{text} [{hr.y_unit}]" if getattr(hr, "y_unit", "") else text
 
@@ -390,124 +390,140 @@ def _pair_entry(
 def plot_comparison(
     entry: ComparisonEntry, path: str | os.PathLike[str], *, pulls: bool = False, note: str = ""
 ) -> None:
-    """Write one PNG: overlaid histograms, ratio panel, optional pull panel and corner note."""
+    """Write one PNG: overlaid histograms, ratio panel, optional pull panel, notice above.
+
+    The look is the run plots' (:mod:`evtkin.output.style`): palette, no title, the notice
+    above the frame, the legend where it covers no data, error bars of the samples side by side,
+    log y when the contents span more than three decades. The ratio panel's range holds every
+    finite ratio point and 1; each pull bar spans its bin exactly (several comparisons share
+    the bin in equal parts); the x range is the histogram's edges.
+    """
     import matplotlib
 
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
 
+    from evtkin.output.plots import _offsets, _positions, _ratio_limits
+    from evtkin.output.style import (
+        apply_axes_style,
+        auto_logy,
+        colour_for,
+        corner_texts,
+        fold_multiplier,
+        place_legend,
+    )
+
     comps = entry.comparisons
     c0 = comps[0]
     sl = c0.inner
     edges = c0.edges
-    centres = 0.5 * (edges[1:] + edges[:-1])
     fac = entry.display_factor[sl]
     nrows = 3 if pulls else 2
-    ratios = [3.0, 1.2, 1.0][:nrows]
+    ratios = [3.2, 1.0, 1.0][:nrows]
     fig, axes = plt.subplots(
-        nrows,
-        1,
-        sharex=True,
-        figsize=(6.4, 4.8 + 1.3 * (nrows - 2)),
-        gridspec_kw={"height_ratios": ratios, "hspace": 0.06},
+        nrows, 1, sharex=True, figsize=(6.4, 6.2 + 1.4 * (nrows - 2)), layout="constrained",
+        gridspec_kw={"height_ratios": ratios},
     )
+    engine: Any = fig.get_layout_engine()
+    engine.set(h_pad=0.02, hspace=0.0)
     ax = axes[0]
-    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    fracs = _offsets(len(comps) + 1)
 
     ref_v = c0.values_a[sl] * fac
     ref_e = np.sqrt(c0.variances_a[sl]) * fac
+    logy = auto_logy([ref_v] + [c.values_b[sl] * fac for c in comps])
+    if logy:
+        ax.set_yscale("log")
+    floor = 1e-300 if logy else 0.0
+    handles: list[Any] = []
+    labels: list[str] = []
+    skyline = ref_v + ref_e
     has_band = c0.band_down is not None and c0.band_up is not None
+    ref_line = ax.stairs(ref_v, edges, color=colour_for(0), linewidth=1.6, baseline=None)
     if has_band:
         bd, bu = c0.band_down[sl] * fac, c0.band_up[sl] * fac  # type: ignore[index]
-        ax.fill_between(
-            edges,
-            np.append(bd, bd[-1]),
-            np.append(bu, bu[-1]),
-            step="post",
-            color=colours[0],
-            alpha=0.25,
-            linewidth=0,
-            label=f"{c0.label_a} band",
-        )
-    ax.stairs(ref_v, edges, color=colours[0], label=c0.label_a)
-    ax.errorbar(centres, ref_v, yerr=ref_e, fmt="none", ecolor=colours[0], elinewidth=1)
+        band = ax.stairs(bu, edges, baseline=np.maximum(bd, floor), fill=True,
+                         color=colour_for(0), alpha=0.25, linewidth=0)
+        handles.append((band, ref_line))
+        labels.append(f"{c0.label_a} (reference), band")
+        skyline = np.maximum(skyline, bu)
+    else:
+        handles.append(ref_line)
+        labels.append(f"{c0.label_a} (reference)")
+    ax.errorbar(_positions(edges, fracs[0], False), ref_v, yerr=ref_e, fmt="none",
+                ecolor=colour_for(0), elinewidth=1)
     for k, c in enumerate(comps, start=1):
-        col = colours[k % len(colours)]
+        col = colour_for(k)
         v = c.values_b[sl] * fac
         e = np.sqrt(c.variances_b[sl]) * fac
         chi = c.chi2
-        lab = f"{c.label_b}  χ²/ndf = {chi.statistic:.3g}/{chi.ndf}, p = {chi.p_value:.3g}"
-        ax.stairs(v, edges, color=col, label=lab)
-        ax.errorbar(centres, v, yerr=e, fmt="none", ecolor=col, elinewidth=1)
-    ax.set_ylabel(display_label(entry.y_label))
-    ax.set_title(entry.title, fontsize=10)
-    ax.legend(fontsize=7, loc="best", frameon=False)
-    if np.all(ref_v[np.isfinite(ref_v)] > 0) and ref_v.size and ref_v.max() / ref_v.min() > 1e3:
-        ax.set_yscale("log")
-    if note:
-        ax.text(
-            0.02,
-            0.97,
-            note,
-            transform=ax.transAxes,
-            fontsize=7,
-            va="top",
-            ha="left",
-            color="0.35",
-            style="italic",
-        )
+        handles.append(ax.stairs(v, edges, color=col, linewidth=1.6, baseline=None))
+        labels.append(f"{c.label_b}: χ²/ndf = {chi.statistic:.3g}/{chi.ndf}, p = {chi.p_text}")
+        ax.errorbar(_positions(edges, fracs[k], False), v, yerr=e, fmt="none", ecolor=col,
+                    elinewidth=1)
+        skyline = np.maximum(skyline, v + e)
+    shown = np.concatenate([ref_v] + [c.values_b[sl] * fac for c in comps])
+    top = float(np.nanmax(skyline)) if np.any(np.isfinite(skyline)) else 1.0
+    if logy:
+        pos = shown[shown > 0]
+        lo = float(pos.min()) if pos.size else 1e-3
+        ax.set_ylim(10 ** (math.log10(lo) - 0.3), 10 ** (math.log10(max(top, lo)) + 0.35))
+    else:
+        ax.set_ylim(min(0.0, float(np.nanmin(shown)) * 1.1), top * 1.08 if top > 0 else 1.0)
+    apply_axes_style(ax, ylabel=display_label(entry.y_label))
+    ax.tick_params(labelbottom=False)
+    corner_texts(ax, note=note)
 
     rx = axes[1]
-    if has_band:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            lo = np.where(ref_v != 0, bd / ref_v, np.nan)
-            hi = np.where(ref_v != 0, bu / ref_v, np.nan)
-        rx.fill_between(
-            edges,
-            np.append(lo, lo[-1]),
-            np.append(hi, hi[-1]),
-            step="post",
-            color=colours[0],
-            alpha=0.25,
-            linewidth=0,
-        )
-    rx.axhline(1.0, color=colours[0], linewidth=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        safe = np.where(ref_v != 0, ref_v, np.nan)
+        if has_band:
+            lo_b, hi_b = bd / safe, bu / safe
+        else:
+            lo_b, hi_b = (ref_v - ref_e) / safe, (ref_v + ref_e) / safe
+    okb = np.isfinite(lo_b) & np.isfinite(hi_b)
+    rx.stairs(np.where(okb, hi_b, 1.0), edges, baseline=np.where(okb, lo_b, 1.0), fill=True,
+              color=colour_for(0), alpha=0.25, linewidth=0)
+    rx.axhline(1.0, color=colour_for(0), linewidth=1)
+    points = []
     for k, c in enumerate(comps, start=1):
-        col = colours[k % len(colours)]
-        rx.errorbar(
-            centres, c.ratio[sl], yerr=c.ratio_err[sl], fmt="o", ms=3, color=col, elinewidth=1
-        )
-    rx.set_ylabel("ratio to ref.", fontsize=8)
-    finite = np.concatenate([c.ratio[sl][np.isfinite(c.ratio[sl])] for c in comps] + [[1.0]])
-    lo_r, hi_r = np.percentile(finite, [2, 98]) if finite.size else (0.5, 1.5)
-    pad = 0.1 * max(hi_r - lo_r, 0.1)
-    rx.set_ylim(max(lo_r - pad, -0.5), hi_r + pad)
+        r, re_ = c.ratio[sl], c.ratio_err[sl]
+        fin = np.isfinite(r)  # a bar only with its point
+        rx.errorbar(_positions(edges, fracs[k], False)[fin], r[fin],
+                    yerr=np.where(np.isfinite(re_), re_, 0.0)[fin], fmt="o", ms=3,
+                    color=colour_for(k), elinewidth=1)
+        points.append(r[fin])
+    rx.set_ylim(*_ratio_limits(points, [lo_b[okb], hi_b[okb]]))
+    rx.set_ylabel("Ratio to ref.", fontsize=10)
     if pulls:
         px = axes[2]
-        width = np.diff(edges) / (len(comps) + 1)
-        for k, c in enumerate(comps, start=1):
-            col = colours[k % len(colours)]
-            px.bar(
-                edges[:-1] + k * width,
-                np.nan_to_num(c.pull[sl]),
-                width=width,
-                color=col,
-                align="center",
-            )
+        width = np.diff(edges) / len(comps)
+        for k, c in enumerate(comps):
+            px.bar(edges[:-1] + k * width, np.nan_to_num(c.pull[sl]), width=width,
+                   color=colour_for(k + 1), align="edge", linewidth=0)
         for y in (-2, 2):
             px.axhline(y, color="0.6", linewidth=0.8, linestyle="--")
         px.axhline(0, color="0.3", linewidth=0.8)
-        px.set_ylabel("pull", fontsize=8)
-    axes[-1].set_xlabel(display_label(entry.x_label))
+        px.set_ylabel("Pull", fontsize=10)
+        lim = max(3.0, float(np.nanmax(np.abs(np.concatenate(
+            [np.nan_to_num(c.pull[sl]) for c in comps])))) * 1.1)
+        px.set_ylim(-lim, lim)
+    for a in axes[1:]:
+        apply_axes_style(a)
+    for a in axes[1:-1]:
+        a.tick_params(labelbottom=False)
+    axes[-1].set_xlabel(display_label(entry.x_label), fontsize=12)
     axes[-1].set_xlim(edges[0], edges[-1])
     fig.align_ylabels(axes)
+    place_legend(ax, edges, skyline, handles=handles, labels=labels, fontsize=8)
+    fold_multiplier(ax)
     _save_atomic(fig, Path(path))
     plt.close(fig)
 
 
 def _save_atomic(fig: Any, path: Path) -> None:
     with atomic_path(path) as tmp:
-        fig.savefig(tmp, dpi=110, bbox_inches="tight")
+        fig.savefig(tmp, dpi=110)
 
 
 # --------------------------------------------------------------------------------------------------

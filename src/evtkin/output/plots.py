@@ -400,7 +400,7 @@ def figure_hist1d(
                 band_art = ax.stairs(c.band_up, edges, baseline=np.maximum(c.band_down, floor),
                                      fill=True, color=col, alpha=0.25, linewidth=0)
                 skyline = np.maximum(skyline, c.band_up)
-            line_art = ax.stairs(c.values, edges, color=col, linewidth=1.6)
+            line_art = ax.stairs(c.values, edges, color=col, linewidth=1.6, baseline=None)
             if band_art is not None:
                 entries["line"].append(((band_art, line_art),
                                         f"{c.label}, {c.band_label} unc."))
@@ -478,6 +478,8 @@ def _ratio_panel(rx: Any, edges: np.ndarray, stacked: list[Curve], lines: list[C
         assert ref is not None
         den = ref.values
         dn = up = ref.errors
+        if ref.band_down is not None and ref.band_up is not None:
+            dn, up = ref.values - ref.band_down, ref.band_up - ref.values
         name = "ref."
     with np.errstate(divide="ignore", invalid="ignore"):
         safe = np.where(den != 0, den, np.nan)
@@ -498,7 +500,8 @@ def _ratio_panel(rx: Any, edges: np.ndarray, stacked: list[Curve], lines: list[C
         col = colour_for(k0 + j, c.colour)
         with np.errstate(divide="ignore", invalid="ignore"):
             r, e = c.values / safe, c.errors / np.abs(safe)
-        rx.stairs(np.where(np.isfinite(r), r, np.nan), edges, color=col, linewidth=1.4)
+        rx.stairs(np.where(np.isfinite(r), r, np.nan), edges, color=col, linewidth=1.4,
+                  baseline=None)
         fin = np.isfinite(r)
         rx.errorbar(_positions(edges, fracs[j], opts.logx)[fin], r[fin], yerr=e[fin], fmt="none",
                     ecolor=col, elinewidth=1.0)
@@ -527,7 +530,7 @@ def _y_label(h: HistResult, edges: np.ndarray) -> str:
         return "Events" + per
     if h.normalisation == "unit_area":
         return "Fraction" + per
-    return h.y_title[:1].upper() + h.y_title[1:] if h.y_title else ""
+    return h.y_title
 
 
 # --------------------------------------------------------------------------------------------------
