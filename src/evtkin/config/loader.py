@@ -15,6 +15,7 @@ from evtkin.config.read_composites import _read_composites
 from evtkin.config.read_histograms import _read_histograms
 from evtkin.config.read_objects import _read_classes, _read_missing, _read_objects, _read_overlap
 from evtkin.config.read_output import _read_output
+from evtkin.config.read_plot import _read_plot
 from evtkin.config.read_regions import _read_regions
 from evtkin.config.read_samples import _read_samples
 from evtkin.config.read_skims import _read_skims
@@ -33,7 +34,7 @@ else:  # pragma: no cover
 
 _TOP = ("analysis", "classes", "samples", "objects", "overlap_removal", "missing_pt", "step",
         "composites", "quantities", "histograms", "output", "uncertainties", "regions",
-        "tables", "systematics", "skims")
+        "tables", "systematics", "skims", "plot", "measured")
 
 
 
@@ -94,7 +95,10 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
     regions = _read_regions(top, steps)
     composites = _read_composites(top)
     quantities = _read_quantities(top)
-    histograms = _read_histograms(top, steps, samples, regions)
+    raw_measured = data.get("measured")
+    measured_names = list(raw_measured) if isinstance(raw_measured, dict) else []
+    histograms = _read_histograms(top, steps, samples, regions, measured_names)
+    plot = _read_plot(top, base, list(samples), histograms)
     output = _read_output(top, base)
     systematics = _read_systematics(top, objects)
     uncertainties, automatic = _read_uncertainties(top, samples, systematics)
@@ -138,6 +142,7 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
         systematics=systematics,
         skims=skims,
         warnings=tuple(warnings),
+        plot=plot,
     )
     _check_names(ctx, cfg)
     _check_ntuple_names(ctx, cfg)

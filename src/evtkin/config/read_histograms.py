@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import itertools
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
+from evtkin.config.read_plot import _read_plot_options
 from evtkin.config.schema import NORMALISATIONS, AxisDef, HistogramSpec, SampleSpec, StepSpec
 from evtkin.config.tables import _check_name, _pair, _Table
 
@@ -36,7 +37,8 @@ def _edges(a: _Table) -> tuple[tuple[float, ...], bool]:
 
 def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
                      samples: Mapping[str, SampleSpec],
-                     regions: Mapping[str, Any] | None = None) -> dict[str, HistogramSpec]:
+                     regions: Mapping[str, Any] | None = None,
+                     measured: Sequence[str] = ()) -> dict[str, HistogramSpec]:
     t = top.table("histograms")
     out: dict[str, HistogramSpec] = {}
     if t is None:
@@ -80,6 +82,15 @@ def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
                               "common selection: not together with regions")
         if len(set(in_regions)) != len(in_regions):
             raise h.ctx.error((*h.path, "regions"), "a region is listed twice")
+        plot: dict[str, object] = {}
+        if h.has("plot"):
+            pt = h.table("plot")
+            assert pt is not None
+            plot = _read_plot_options(pt, list(samples), measured,
+                                      axes[0].edges if len(axes) == 1 else None)
+            pt.done()
+        else:
+            h.known.append("plot")
         out[name] = HistogramSpec(
             name=name,
             title=h.string("title", name),
@@ -89,6 +100,7 @@ def _read_histograms(top: _Table, steps: tuple[StepSpec, ...],
             samples=only,
             response=h.boolean("response", False),
             regions=in_regions,
+            plot=plot,
         )
         h.done()
     t.done()

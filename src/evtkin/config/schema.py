@@ -192,6 +192,8 @@ class HistogramSpec:
     #: the regions to fill it in (each gives its own histogram ``NAME@REGION``); empty: the
     #: common selection only
     regions: tuple[str, ...] = ()
+    #: ``plot = {...}``: how this histogram is drawn (the keys of :data:`PLOT_KEYS`)
+    plot: Mapping[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -199,6 +201,32 @@ class OutputSpec:
     directory: Path | None = None
     formats: tuple[str, ...] = OUTPUT_FORMATS
     plot_formats: tuple[str, ...] = ("png", "pdf")
+
+
+#: plot options, in ``[plot]`` (every histogram) and a histogram's ``plot`` table; the same
+#: names as the options of ``evtkin plot`` (see docs/plots.md)
+PLOT_KEYS = ("stack", "overlay", "data", "colours", "logy", "logx", "xrange", "yrange", "rebin",
+             "formats", "figsize", "title", "ratio")
+
+
+@dataclass(frozen=True)
+class MeasuredSpec:
+    """``[measured.NAME]``: tables of measured points, one per histogram (docs/plots.md)."""
+
+    name: str
+    label: str
+    tables: Mapping[str, Path]
+    toy: bool = False
+
+
+@dataclass(frozen=True)
+class PlotSpec:
+    """``[plot]`` (options for every histogram, :data:`PLOT_KEYS`), the √s written on the
+    plots when the files do not give it, and the ``[measured.NAME]`` tables."""
+
+    options: Mapping[str, Any] = field(default_factory=dict)
+    sqrt_s_gev: float | None = None
+    measured: Mapping[str, MeasuredSpec] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -256,6 +284,8 @@ class AnalysisConfig:
     skims: dict[str, SkimSpec] = field(default_factory=dict)
     #: what loading noticed but did not refuse (e.g. a file listed twice)
     warnings: tuple[str, ...] = ()
+    #: ``[plot]`` and ``[measured.NAME]``
+    plot: PlotSpec = field(default_factory=PlotSpec)
 
     def names(self) -> dict[str, str]:
         """Every name an expression may use → what it is."""

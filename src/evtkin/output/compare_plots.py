@@ -515,8 +515,11 @@ def plot_comparison(
     axes[-1].set_xlabel(display_label(entry.x_label), fontsize=12)
     axes[-1].set_xlim(edges[0], edges[-1])
     fig.align_ylabels(axes)
+    ylab = display_label(entry.y_label)
+    fold_multiplier(ax, ylab)
     place_legend(ax, edges, skyline, handles=handles, labels=labels, fontsize=8)
-    fold_multiplier(ax)
+    fold_multiplier(ax, ylab)
+    fig.set_layout_engine("none")  # laid out by place_legend
     _save_atomic(fig, Path(path))
     plt.close(fig)
 

@@ -431,10 +431,12 @@ def figure_hist1d(
         if opts.yrange:
             ax.set_ylim(*opts.yrange)
         elif logy:
-            pos = np.concatenate([v[v > 0] for v in shown] + [np.array([])])
-            lo = float(pos.min()) if pos.size else 1e-3
+            # the smallest sample of the stack shows too, within six decades of the top
+            pos = np.concatenate([v[v > 0] for v in shown + [c.values for c in stacked]]
+                                 + [np.array([])])
             hi = float(np.max(skyline[np.isfinite(skyline)])) if np.any(np.isfinite(skyline)) \
                 else 1.0
+            lo = max(float(pos.min()), hi * 1e-6) if pos.size else 1e-3
             ax.set_ylim(10 ** (math.log10(lo) - 0.3), 10 ** (math.log10(max(hi, lo)) + 0.35))
         else:
             low = min(0.0, min(float(np.min(v)) for v in shown))
@@ -456,10 +458,14 @@ def figure_hist1d(
             ax.tick_params(labelbottom=False)
             fig.align_ylabels([ax, rx])
         shown_entries = [e for k in ("points", "stack", "band", "line") for e in entries[k]]
+        ylab = display_label(y_label)
+        fold_multiplier(ax, ylab)
         place_legend(ax, edges, skyline, handles=[h for h, _ in shown_entries],
                      labels=[lab for _, lab in shown_entries],
                      ncol=2 if len(shown_entries) > 5 else 1, max_tries=1 if opts.yrange else 6)
-        fold_multiplier(ax)
+        fold_multiplier(ax, ylab)  # the limits may have grown
+        # place_legend laid the figure out; keep that layout (no second layout pass on saving)
+        fig.set_layout_engine("none")
     except BaseException:
         plt.close(fig)
         raise

@@ -88,15 +88,23 @@ def apply_axes_style(ax: Any, *, xlabel: str = "", ylabel: str = "", fontsize: f
         ax.set_ylabel(ylabel, fontsize=fontsize)
 
 
-def fold_multiplier(ax: Any) -> None:
+def fold_multiplier(ax: Any, label: str | None = None) -> None:
     """Move the y axis' ×10ⁿ multiplier from above the frame (where the notice is) into the
-    axis label: ``Events / 2 GeV (×10⁷)``. Needs a drawn figure (the multiplier is known then)."""
-    ax.figure.draw_without_rendering()
-    off = ax.yaxis.get_offset_text()
-    text = off.get_text()
-    if text and ax.yaxis.get_scale() == "linear":
-        off.set_visible(False)
-        ax.set_ylabel(f"{ax.get_ylabel()}  ({text})")
+    axis label: ``Events / 2 GeV (×10⁷)``, for the current limits. ``label``: the label without
+    a multiplier (default: the axis' label now); call again after the limits change."""
+    base = ax.get_ylabel() if label is None else label
+    ax.set_ylabel(base)
+    if ax.yaxis.get_scale() != "linear":
+        return
+    fmt = ax.yaxis.get_major_formatter()
+    if not hasattr(fmt, "get_offset"):
+        return
+    lo, hi = ax.get_ylim()
+    fmt.set_locs([t for t in ax.yaxis.get_majorticklocs() if lo <= t <= hi])
+    text = fmt.get_offset()
+    if text:
+        ax.yaxis.get_offset_text().set_visible(False)
+        ax.set_ylabel(f"{base}  ({text})")
 
 
 def corner_texts(ax: Any, *, note: str = "", right: str = "", fontsize: float = 9) -> None:
@@ -152,9 +160,10 @@ def place_legend(
 
     ``skyline[i]`` is the highest drawn y (bar tops, error bars, bands, points) in bin
     ``[edges[i], edges[i+1])``: everything drawn in that bin lies at or below it. A place is free
-    when the legend's box (from matplotlib's own layout) lies above the skyline of every bin it
-    spans horizontally. Corners are tried first; if none is free the top of the y axis is raised
-    (linear: in steps of 25 % of the range, log: half a decade) and the corners tried again.
+    when the legend's box lies above the skyline of every bin it spans horizontally, with a
+    margin of 2 % of the axes height. The box's size comes from matplotlib's own layout (one
+    drawing pass); the corners are tried first, and if none is free the top of the y axis is
+    raised (linear: by 25 % of the range, log: half a decade) and the corners tried again.
     Returns the legend (``None`` when there is nothing to label). ``handles``/``labels``: the
     entries in this order (default: the axes' own).
     """
@@ -164,45 +173,62 @@ def place_legend(
         return None
     fig = ax.figure
     sky = np.where(np.isfinite(skyline), skyline, -np.inf)
-    leg = None
+    leg = ax.legend(handles, labels, loc="upper right", frameon=False, fontsize=fontsize,
+                    ncol=ncol, borderaxespad=0.6)
+    fig.draw_without_rendering()
+    renderer = fig.canvas.get_renderer()
+    bb = leg.get_window_extent(renderer)
+    w, h = bb.width, bb.height
+    pad = renderer.points_to_pixels(leg.borderaxespad * leg.prop.get_size_in_points())
     for _ in range(max_tries):
+        frame = ax.get_window_extent(renderer)
         for loc in _LOCATIONS:
-            if leg is not None:
-                leg.remove()
-            leg = ax.legend(handles, labels, loc=loc, frameon=False, fontsize=fontsize,
-                            ncol=ncol, borderaxespad=0.6)
-            if _legend_is_free(fig, ax, leg, edges, sky):
+            box = _candidate(loc, frame, w, h, pad)
+            if _box_is_free(ax, box, edges, sky):
+                leg.set_loc(loc)
                 return leg
         _raise_top(ax, sky)
-    if leg is not None:
-        leg.remove()
-    return ax.legend(handles, labels, loc="upper right", frameon=False, fontsize=fontsize,
-                     ncol=ncol)
+    return leg
+
+
+def _candidate(loc: str, f: Any, w: float, h: float, pad: float
+               ) -> tuple[float, float, float, float]:
+    """Display box ``(x0, x1, y0, y1)`` of a ``w`` x ``h`` legend at ``loc`` in frame ``f``."""
+    vert, _, horiz = loc.partition(" ")
+    if horiz == "right":
+        x0 = f.x1 - pad - w
+    elif horiz == "left":
+        x0 = f.x0 + pad
+    else:
+        x0 = 0.5 * (f.x0 + f.x1) - 0.5 * w
+    y0 = f.y1 - pad - h if vert == "upper" else 0.5 * (f.y0 + f.y1) - 0.5 * h
+    return x0, x0 + w, y0, y0 + h
 
 
 def legend_box_data(fig: Any, ax: Any, leg: Any) -> tuple[float, float, float, float]:
     """The legend's box in data coordinates ``(x0, x1, y0, y1)`` (after a layout pass)."""
-    renderer = fig.canvas.get_renderer()
-    bb = leg.get_window_extent(renderer)
+    bb = leg.get_window_extent(fig.canvas.get_renderer())
+    return _to_data(ax, (bb.x0, bb.x1, bb.y0, bb.y1))
+
+
+def _to_data(ax: Any, box: tuple[float, float, float, float]
+             ) -> tuple[float, float, float, float]:
     inv = ax.transData.inverted()
-    (x0, y0), (x1, y1) = inv.transform([[bb.x0, bb.y0], [bb.x1, bb.y1]])
+    (x0, y0), (x1, y1) = inv.transform([[box[0], box[2]], [box[1], box[3]]])
     return float(x0), float(x1), float(y0), float(y1)
 
 
-def _legend_is_free(fig: Any, ax: Any, leg: Any, edges: np.ndarray, sky: np.ndarray) -> bool:
-    fig.draw_without_rendering()
-    x0, x1, y0, _y1 = legend_box_data(fig, ax, leg)
+def _box_is_free(ax: Any, box: tuple[float, float, float, float], edges: np.ndarray,
+                 sky: np.ndarray) -> bool:
+    x0, x1, _y0, _y1 = _to_data(ax, box)
+    # the data y of the box's bottom edge less the margin, in display space first
+    frame = ax.get_window_extent()
+    _a, _b, y0, _c = _to_data(ax, (box[0], box[1], box[2] - 0.02 * frame.height, box[3]))
     lo, hi = edges[:-1], edges[1:]
     under = (hi > x0) & (lo < x1)
     if not np.any(under):
         return True
-    # a small margin (2 % of the axes height) between the data and the legend
-    ylo, yhi = ax.get_ylim()
-    if ax.get_yscale() == "log":
-        margin_ok = np.log10(np.maximum(sky[under], 1e-300)) < (
-            np.log10(y0) - 0.02 * (np.log10(yhi) - np.log10(ylo)))
-        return bool(np.all(margin_ok | ~np.isfinite(sky[under]) | (sky[under] <= 0)))
-    return bool(np.all(sky[under] < y0 - 0.02 * (yhi - ylo)))
+    return bool(np.all(sky[under] < y0))
 
 
 def _raise_top(ax: Any, sky: np.ndarray) -> None:

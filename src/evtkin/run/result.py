@@ -134,4 +134,45 @@ def results_record(plan: Plan, result: RunResult, *, with_cutflow: bool = True) 
     skipped = (result.provenance or {}).get("skipped")
     if skipped:  # --skip-bad: the units left out, so nothing is silently missing
         meta["skipped"] = list(skipped)
+    meta.update(plot_meta(plan.config))
     return tables.Results(samples=samples, meta=meta)
+
+
+def plot_meta(cfg: Any) -> dict[str, Any]:
+    """results.json's ``plot`` (the config's plot options, per histogram too, and √s) and
+    ``measured`` (the measured tables, read now) records; see docs/results-format.md."""
+    from evtkin.output.measured import read_measured
+
+    plot: dict[str, Any] = dict(cfg.plot.options)
+    per_hist = {h: dict(spec.plot) for h, spec in cfg.histograms.items() if spec.plot}
+    if per_hist:
+        plot["histograms"] = per_hist
+    sqrt_s = cfg.plot.sqrt_s_gev or _sqrt_s_of(cfg)
+    if sqrt_s:
+        plot["sqrt_s_gev"] = sqrt_s
+    out: dict[str, Any] = {"plot": plot} if plot else {}
+    if cfg.plot.measured:
+        out["measured"] = {
+            name: {"label": m.label, "toy": m.toy,
+                   "tables": {h: dict(read_measured(f).to_dict(), toy=m.toy)
+                              for h, f in m.tables.items()}}
+            for name, m in cfg.plot.measured.items()}
+    return out
+
+
+def _sqrt_s_of(cfg: Any) -> float | None:
+    """√s of the LHE samples' beams, when every sample that says agrees (else ``None``)."""
+    from evtkin.io.lhe_header import lhe_info
+
+    values = []
+    for s in cfg.samples.values():
+        if s.format != "lhe" or not s.files:
+            continue
+        try:
+            values.append(lhe_info(s.files[0]).sqrt_s)
+        except (OSError, ValueError):
+            continue
+    if values and max(values) - min(values) <= 1e-6 * max(values):
+        return float(values[0])
+    return None
+
