@@ -15,11 +15,11 @@ from pathlib import Path
 import numpy as np
 
 from evtkin.output.measured import MeasuredTable, write_measured_csv
-from evtkin.output.tables import load_results
+from evtkin.output.tables import read_results
 
 
 def main(folder: str, out: str, *hists: str) -> None:
-    res = load_results(folder)
+    res = read_results(folder)
     rng = np.random.default_rng(19)
     for name in hists:
         hs = [s.histograms[name] for s in res.samples.values() if name in s.histograms]

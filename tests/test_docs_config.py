@@ -222,7 +222,11 @@ KEYS: dict[str, tuple[str, ...]] = {
     "composites.ttbar_lepton_jets": ("build", "lepton", "jets", "missing_pt", "use_b_tags",
                                      "neutrino_root", "w_mass", "top_mass", "w_resolution",
                                      "top_resolution", "max_jets"),
-    "histograms": ("title", "x", "y", "normalise", "after", "samples", "response", "regions"),
+    "histograms": ("title", "x", "y", "normalise", "after", "samples", "response", "regions",
+                   "plot"),
+    "histograms.plot": cfgmod.PLOT_KEYS,
+    "plot": (*cfgmod.PLOT_KEYS, "sqrt_s_gev"),
+    "measured": ("label", "toy", "tables"),
     "histograms.axis": ("value", "bins", "range", "edges", "label", "unit"),
     "output": ("directory", "formats", "plot_formats"),
     "uncertainties": ("automatic",),
@@ -241,7 +245,8 @@ HOME = {
     "output": "`[output]`", "uncertainties": "`[uncertainties]`", "classes": "`[classes]`",
     "quantities": "`[quantities]`", "regions": "`[regions.NAME]`",
     "tables": "Event weights and tables", "systematics": "`[systematics.NAME]`",
-    "skims": "`[skims.NAME]`",
+    "skims": "`[skims.NAME]`", "plot": "`[plot]`",
+    "measured": "`[measured.NAME]`",
 }
 
 
@@ -264,13 +269,13 @@ def _record_known(monkeypatch: pytest.MonkeyPatch) -> dict[str, set[str]]:
     seen: dict[str, set[str]] = {}
     original = cfgmod._Table.done
     users = {"samples", "objects", "composites", "histograms", "uncertainties", "regions",
-             "systematics", "skims"}
+             "systematics", "skims", "measured"}
 
     def done(self: Any) -> None:
         p = self.path
         known = set(self.known)
         key: str | None = None
-        if len(p) == 1 and p[0] in ("analysis", "missing_pt", "output"):
+        if len(p) == 1 and p[0] in ("analysis", "missing_pt", "output", "plot"):
             key = p[0]
         elif len(p) == 1 and p[0] == "uncertainties":
             key = "uncertainties"
@@ -286,7 +291,7 @@ def _record_known(monkeypatch: pytest.MonkeyPatch) -> dict[str, set[str]]:
         elif len(p) == 3 and p[0] == "objects":
             key = f"objects.{p[2]}"
         elif len(p) == 3 and p[0] == "histograms":
-            key = "histograms.axis"
+            key = "histograms.plot" if p[2] == "plot" else "histograms.axis"
         if key is not None:
             seen.setdefault(key, set()).update(known)
         original(self)

@@ -1,4 +1,4 @@
-"""Measured-points tables (evtkin's own CSV and JSON format): reading, and errors naming the line."""
+"""Measured-points tables (evtkin's own CSV and JSON format): reading, errors naming the line."""
 
 from __future__ import annotations
 

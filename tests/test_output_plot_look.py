@@ -18,9 +18,9 @@ import pytest
 from evtkin.output.plots import Curve, PlotOptions, figure_hist1d, stack_total
 
 matplotlib.use("Agg", force=True)
-import matplotlib.pyplot as plt  # noqa: E402
-from matplotlib.collections import LineCollection  # noqa: E402
-from matplotlib.patches import StepPatch  # noqa: E402
+import matplotlib.pyplot as plt
+from matplotlib.collections import LineCollection
+from matplotlib.patches import StepPatch
 
 EDGES = np.linspace(60.0, 120.0, 31)
 CENTRES = 0.5 * (EDGES[1:] + EDGES[:-1])
@@ -123,8 +123,10 @@ def test_legend_covers_nothing_drawn_and_not_the_notice(name: str) -> None:
         assert not (nb.x0 < box.x1 and nb.x1 > box.x0 and nb.y0 < box.y1 and nb.y1 > box.y0)
         # the legend lies inside the frame
         frame = ax.get_window_extent()
-        assert frame.x0 <= box.x0 and box.x1 <= frame.x1
-        assert frame.y0 <= box.y0 and box.y1 <= frame.y1
+        assert frame.x0 <= box.x0
+        assert box.x1 <= frame.x1
+        assert frame.y0 <= box.y0
+        assert box.y1 <= frame.y1
     finally:
         plt.close(fig)
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -62,3 +64,33 @@ def test_bad_rebin_requests_are_errors() -> None:
         rebin_result(h, [0.0, 15.0, 200.0])
     with pytest.raises(ResultsError, match="run from the first edge"):
         rebin_result(h, [10.0, 200.0])
+
+
+def test_evtkin_plot_draws_what_a_coarser_run_gives(tmp_path: Path) -> None:
+    # through results.json, as `evtkin plot --rebin 3` reads it: the curves handed to the
+    # drawing equal the coarse run's in-range contents and MC errors, in every normalisation
+    from evtkin.cli import main
+    from evtkin.output.plots import figure_tasks
+    from evtkin.output.tables import Results, SampleResult, read_results, write_results
+
+    modes = [("raw", True), ("events", True), ("xsec_per_bin", True), ("unit_area", True),
+             ("unit_area", False)]
+    fine = {f"{m}_{f}": _filled(FINE, m, f) for m, f in modes}
+    coarse = {f"{m}_{f}": _filled(FINE[::3], m, f) for m, f in modes}
+    for k, h in fine.items():
+        h.name = k  # type: ignore[attr-defined]
+    write_results(tmp_path / "res", Results({"s": SampleResult("s", "toy", 140.0,
+                                                                histograms=fine)}))  # type: ignore[arg-type]
+    res = read_results(tmp_path / "res")
+    tasks = figure_tasks(tmp_path / "out", res, overrides={"rebin": 3})
+    assert len(tasks) == len(modes)
+    for _fn, (stem, curves), _kw in tasks:
+        want = coarse[stem.name]
+        (c,) = curves
+        np.testing.assert_allclose(c.edges, FINE[::3])
+        np.testing.assert_allclose(c.values, want.inner_values(), rtol=1e-10, atol=1e-15)
+        np.testing.assert_allclose(c.errors, np.sqrt(want.inner_variances()), rtol=1e-8,
+                                   atol=1e-15)
+    assert main(["plot", str(tmp_path / "res"), "--rebin", "3", "--hists", "raw_True",
+                 "--formats", "svg", "--jobs", "1", "--out", str(tmp_path / "o")]) == 0
+    assert (tmp_path / "o" / "plots" / "raw_True.svg").stat().st_size > 1000

@@ -122,7 +122,8 @@ def test_cutflow_files(tmp_path: Path) -> None:
     assert "0.4000" in txt
     assert "1.22" in txt  # sqrt(1.5) = 1.2247 (√Σw² error)
     lines = (tmp_path / "cutflow" / "dy_toy.csv").read_text(encoding="utf-8").splitlines()
-    assert lines[0] == "step,n_raw,sum_w,sum_w2,eff_step,eff_cum"
+    # the sample has a luminosity: expected events L·Σw and L·√Σw² follow
+    assert lines[0] == "step,n_raw,sum_w,sum_w2,eff_step,eff_cum,expected,expected_err"
     assert lines[3].startswith("mass window,300,3.0,0.15,0.25,")
     assert cutflow_text([]).count("\n") == 2  # header + rule only
 
@@ -151,3 +152,32 @@ def test_reader_errors(tmp_path: Path) -> None:
     (tmp_path / "results.json").write_text(json.dumps(data), encoding="utf-8")
     with pytest.raises(ResultsError, match=r"histograms\.mll\.values: expected shape \(5,\)"):
         read_results(tmp_path)
+
+
+def test_cutflow_in_expected_events_and_as_markdown_and_latex(tmp_path: Path) -> None:
+    from evtkin.output.tables import cutflow_latex, cutflow_markdown, write_cutflow
+
+    steps = [{"step": "all events", "n_raw": 1000, "sum_w": 2.0, "sum_w2": 0.004},
+             {"step": "two leptons & more", "n_raw": 400, "sum_w": 0.8, "sum_w2": 0.0016}]
+    # N = L σ with 1 fb⁻¹ = 1000 pb⁻¹ (common practice); error L √Σw²
+    txt = cutflow_text(steps, luminosity_fb=140.0)
+    assert "expected events (140 fb⁻¹)" in txt
+    assert "280000" in txt  # 140 × 1000 × 2.0
+    assert f"{140e3 * np.sqrt(0.004):.3g}" in txt  # 8.85e+03
+    md = cutflow_markdown(steps, 140.0)
+    rows = [r for r in md.splitlines() if r.startswith("|")]
+    assert len(rows) == 4  # header, alignment, two steps
+    assert len({r.count("|") for r in rows}) == 1  # every row has the same number of cells
+    assert "| 112000 |" in md  # 140 × 1000 × 0.8
+    tex = cutflow_latex(steps, 140.0)
+    assert r"\begin{tabular}{lrrrrr}" in tex
+    assert r"two leptons \& more" in tex  # LaTeX specials escaped
+    assert r"$280000 \pm 8.85\times10^{3}$" in tex
+    assert tex.count(r" \\") == 3  # header and two rows
+    # without a luminosity: no expected-events column
+    assert "expected" not in cutflow_text(steps)
+    write_cutflow(tmp_path, "dy", steps, luminosity_fb=140.0)
+    assert sorted(p.suffix for p in (tmp_path / "cutflow").iterdir()) == [
+        ".csv", ".md", ".tex", ".txt"]
+    head = (tmp_path / "cutflow" / "dy.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert head.endswith(",expected,expected_err")

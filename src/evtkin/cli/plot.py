@@ -109,9 +109,9 @@ def main(args: argparse.Namespace) -> int:
     from evtkin.errors import ResultsError
     from evtkin.output.measured import read_measured
     from evtkin.output.plots import write_plots
-    from evtkin.output.tables import load_results
+    from evtkin.output.tables import read_results
 
-    results = load_results(args.folder)
+    results = read_results(args.folder)
     overrides = overrides_from(args)
     if args.measured:
         measured = dict(results.meta.get("measured") or {})

@@ -89,16 +89,16 @@ def main(args: argparse.Namespace) -> int:
 
     try:
         cfg = load_config(args.config)
+        if cfg.plot.measured:  # a bad measured table stops the run before it starts
+            from evtkin.output.measured import read_measured
+
+            for m in cfg.plot.measured.values():
+                for f in m.tables.values():
+                    read_measured(f)
     except BaseException:
         if executor is not None and hasattr(executor, "abandon"):
             executor.abandon()  # a prestarted local cluster: stop it before reporting
         raise
-    if cfg.plot.measured:  # a bad measured table stops the run before it starts
-        from evtkin.output.measured import read_measured
-
-        for m in cfg.plot.measured.values():
-            for f in m.tables.values():
-                read_measured(f)
     out = Path(args.out) if args.out else (cfg.output.directory
                                            or Path(args.config).resolve().parent / "evtkin-output")
     if executor is None:

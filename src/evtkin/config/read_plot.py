@@ -48,15 +48,14 @@ def _read_plot_options(t: _Table, names: Sequence[str], measured: Sequence[str],
     for key in ("xrange", "yrange"):
         r = _pair(t, key)
         if r is not None:
-            if r[1] <= r[0]:
-                raise t.ctx.error((*t.path, key), f"expected [low, high] with high > low, got "
-                                  f"{list(r)}")
             out[key] = list(r)
-    size = _pair(t, "figsize")
+    size = t.raw("figsize")
     if size is not None:
-        if min(size) <= 0:
-            raise t.ctx.error((*t.path, "figsize"), "expected [width, height] in inches, > 0")
-        out["figsize"] = list(size)
+        if (not isinstance(size, list) or len(size) != 2 or not all(
+                isinstance(x, (int, float)) and not isinstance(x, bool) and x > 0 for x in size)):
+            raise t.ctx.error((*t.path, "figsize"), f"expected [width, height] in inches, both "
+                              f"> 0, got {_kind(size) if not isinstance(size, list) else size}")
+        out["figsize"] = [float(x) for x in size]
     formats = t.strings("formats", None)
     if formats is not None:
         for i, f in enumerate(formats):

@@ -14,7 +14,7 @@ import io
 import json
 import math
 import os
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -35,6 +35,8 @@ __all__ = [
     "HistResult",
     "Results",
     "SampleResult",
+    "cutflow_latex",
+    "cutflow_markdown",
     "cutflow_text",
     "hist_result",
     "load_results",
@@ -229,44 +231,132 @@ def _cutflow_rows(steps: Sequence[Mapping[str, Any]]) -> list[dict[str, Any]]:
     return out
 
 
-def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "") -> str:
-    """Aligned text table: step, raw count, Σw ± √Σw², step and cumulative efficiency."""
+def _expected(rows: Sequence[Mapping[str, Any]], luminosity_fb: float | None
+              ) -> list[tuple[float, float]] | None:
+    """Expected events N = L·Σw and √(L²·Σw²) per step (L in pb⁻¹), when a luminosity is set."""
+    if not luminosity_fb:
+        return None
+    lum = float(luminosity_fb) * 1000.0  # 1 fb⁻¹ = 1000 pb⁻¹
+    return [(lum * r["sum_w"], lum * math.sqrt(max(r["sum_w2"], 0.0))) for r in rows]
+
+
+def _cutflow_table(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None
+                   ) -> tuple[list[str], list[list[str]]]:
     rows = _cutflow_rows(steps)
-    head = ["step", "events", "sum of weights", "± sqrt(Σw²)", "eff. step", "eff. cumul."]
-    body = [[r["step"], str(r["n_raw"]), f"{r['sum_w']:.6g}", f"{math.sqrt(r['sum_w2']):.3g}",
-             f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"] for r in rows]
+    exp = _expected(rows, luminosity_fb)
+    head = ["step", "events", "Σw [pb]", "± √Σw² [pb]"]
+    if exp is not None:
+        head += [f"expected events ({luminosity_fb:g} fb⁻¹)", "± √Σw²·L"]
+    head += ["eff. step", "eff. cumul."]
+    body = []
+    for k, r in enumerate(rows):
+        line = [r["step"], str(r["n_raw"]), f"{r['sum_w']:.6g}", f"{math.sqrt(r['sum_w2']):.3g}"]
+        if exp is not None:
+            line += [f"{exp[k][0]:.6g}", f"{exp[k][1]:.3g}"]
+        line += [f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"]
+        body.append(line)
+    return head, body
+
+
+def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "",
+                 luminosity_fb: float | None = None) -> str:
+    """Aligned text table: step, raw count, Σw ± √Σw² (pb), with a luminosity the expected
+    events N = L·Σw ± L·√Σw², step and cumulative efficiency."""
+    head, body = _cutflow_table(steps, luminosity_fb)
     widths = [max(len(x) for x in col) for col in zip(head, *body, strict=False)]
     lines = [title] if title else []
-    def left(s: str, w: int) -> str:
-        return s.ljust(w)
-
-    def right(s: str, w: int) -> str:
-        return s.rjust(w)
-
-    fmt: list[Callable[[str, int], str]] = [left, right, right, right, right, right]
     for r in [head, *body]:
-        lines.append("  ".join(f(x, w) for f, x, w in zip(fmt, r, widths, strict=True)))
+        lines.append("  ".join(x.ljust(w) if i == 0 else x.rjust(w)
+                               for i, (x, w) in enumerate(zip(r, widths, strict=True))))
         if r is head:
             lines.append("  ".join("-" * w for w in widths))
     return "\n".join(lines) + "\n"
 
 
+def cutflow_markdown(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None = None,
+                     title: str = "") -> str:
+    """The cutflow as a Markdown table (the same columns as :func:`cutflow_text`)."""
+    head, body = _cutflow_table(steps, luminosity_fb)
+
+    def cell(x: str) -> str:
+        return x.replace("|", "\\|")
+
+    out = [f"**{cell(title)}**", ""] if title else []
+    out.append("| " + " | ".join(cell(h) for h in head) + " |")
+    out.append("|" + "|".join(":---" if i == 0 else "---:" for i in range(len(head))) + "|")
+    out += ["| " + " | ".join(cell(x) for x in r) + " |" for r in body]
+    return "\n".join(out) + "\n"
+
+
+_TEX_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#",
+                "_": r"\_", "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}",
+                "^": r"\textasciicircum{}"}
+
+
+def _tex(text: str) -> str:
+    return "".join(_TEX_SPECIAL.get(ch, ch) for ch in text)
+
+
+def _tex_number(text: str) -> str:
+    """``1.5e+07`` → ``1.5\\times10^{7}`` (math mode)."""
+    m = re.fullmatch(r"(-?[0-9.]+)e([+-])0*([0-9]+)", text)
+    if m:
+        sign = "-" if m.group(2) == "-" else ""
+        return f"{m.group(1)}\\times10^{{{sign}{m.group(3)}}}"
+    return text
+
+
+def cutflow_latex(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None = None,
+                  title: str = "") -> str:
+    """The cutflow as a LaTeX ``tabular`` (values ± errors in math mode), ready to \\input."""
+    rows = _cutflow_rows(steps)
+    exp = _expected(rows, luminosity_fb)
+    cols = "lr" + "r" + ("r" if exp is not None else "") + "rr"
+    head = ["Step", "Events", r"$\sum w$ [pb]"]
+    if exp is not None:
+        head.append(f"Expected ({luminosity_fb:g}" + r"~fb$^{-1}$)")
+    head += ["Eff. step", "Eff. cumul."]
+    out = [f"% {_tex(title)}" if title else "% evtkin cutflow",
+           f"\\begin{{tabular}}{{{cols}}}", r"\hline", " & ".join(head) + r" \\", r"\hline"]
+    for k, r in enumerate(rows):
+        sw = _tex_number(f"{r['sum_w']:.6g}")
+        err = _tex_number(f"{math.sqrt(r['sum_w2']):.3g}")
+        cells = [_tex(r["step"]), str(r["n_raw"]), f"${sw} \\pm {err}$"]
+        if exp is not None:
+            n = _tex_number(f"{exp[k][0]:.6g}")
+            dn = _tex_number(f"{exp[k][1]:.3g}")
+            cells.append(f"${n} \\pm {dn}$")
+        cells += [f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"]
+        out.append(" & ".join(cells) + r" \\")
+    out += [r"\hline", r"\end{tabular}"]
+    return "\n".join(out) + "\n"
+
+
 def write_cutflow(
     folder: str | os.PathLike[str], sample: str, steps: Sequence[Mapping[str, Any]],
     title: str | None = None,
+    luminosity_fb: float | None = None,
 ) -> tuple[Path, Path]:
-    """``cutflow/<sample>.txt`` and ``.csv`` (a region's: ``<sample>@<region>``)."""
+    """``cutflow/<sample>.txt``, ``.csv``, ``.md`` and ``.tex`` (a region's:
+    ``<sample>@<region>``; with a luminosity: the expected events too, and the CSV gains the
+    columns ``expected``, ``expected_err``)."""
     d = Path(folder) / "cutflow"
     rows = _cutflow_rows(steps)
+    exp = _expected(rows, luminosity_fb)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["step", "n_raw", "sum_w", "sum_w2", "eff_step", "eff_cum"])
-    for r in rows:
+    w.writerow(["step", "n_raw", "sum_w", "sum_w2", "eff_step", "eff_cum"]
+               + (["expected", "expected_err"] if exp is not None else []))
+    for k, r in enumerate(rows):
         w.writerow([r["step"], r["n_raw"], _fmt(r["sum_w"]), _fmt(r["sum_w2"]),
-                    _fmt(r["eff_step"]), _fmt(r["eff_cum"])])
-    t = atomic_write_text(d / f"{safe_name(sample)}.txt",
-                          cutflow_text(steps, title or f"sample {sample}"))
-    c = atomic_write_text(d / f"{safe_name(sample)}.csv", buf.getvalue())
+                    _fmt(r["eff_step"]), _fmt(r["eff_cum"])]
+                   + ([_fmt(exp[k][0]), _fmt(exp[k][1])] if exp is not None else []))
+    title = title or f"sample {sample}"
+    stem = safe_name(sample)
+    t = atomic_write_text(d / f"{stem}.txt", cutflow_text(steps, title, luminosity_fb))
+    c = atomic_write_text(d / f"{stem}.csv", buf.getvalue())
+    atomic_write_text(d / f"{stem}.md", cutflow_markdown(steps, luminosity_fb, title))
+    atomic_write_text(d / f"{stem}.tex", cutflow_latex(steps, luminosity_fb, title))
     return t, c
 
 
@@ -312,10 +402,11 @@ def write_results(
                 target = root / "csv" / safe_name(sname) / f"{safe_name(hname)}.csv"
                 write_hist_csv(target, h, sname)
         if s.cutflow:
-            write_cutflow(root, sname, s.cutflow)
+            write_cutflow(root, sname, s.cutflow, luminosity_fb=s.luminosity_fb)
         for region, rows in s.region_cutflows.items():
             write_cutflow(root, f"{sname}@{region}", rows,
-                          title=f"sample {sname}, region {region}")
+                          title=f"sample {sname}, region {region}",
+                          luminosity_fb=s.luminosity_fb)
     return write_json(root / RESULTS_JSON, results_to_dict(results))
 
 
