@@ -380,3 +380,36 @@ def test_report_says_each_note_once_and_lists_merged_bins() -> None:
     assert page.count(shared) == 1
     assert "weighted vs weighted" in page
     assert ">WW<" not in page
+
+
+def test_comparison_plot_geometry(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # read back from the figure: pull bars span exactly their bins, every finite ratio point
+    # lies inside the ratio panel (with 1), the x range is the histogram's edges, no title
+    import evtkin.output.compare_plots as cp
+
+    figs: list[Any] = []
+    monkeypatch.setattr(cp, "_save_atomic", lambda fig, path: figs.append(fig))
+    std = make_results(make_sample("standard", 50, 0.0))
+    dfm = make_results(make_sample("standard", 51, 0.6))
+    cs = compare_loaded([std, dfm], ["a", "b"], shape_only=True)
+    entry = next(e for e in cs.entries if e.name == "m_pair")
+    monkeypatch.setattr("matplotlib.pyplot.close", lambda fig: None)
+    plot_comparison(entry, tmp_path / "x.png", pulls=True, note=NOTE)
+    fig = figs[0]
+    ax, rx, px = fig.axes
+    assert ax.get_title() == ""
+    assert ax.get_xlim() == (MASS_EDGES[0], MASS_EDGES[-1])
+    bars = sorted(px.patches, key=lambda p: p.get_x())
+    lefts = np.array([b.get_x() for b in bars])
+    rights = np.array([b.get_x() + b.get_width() for b in bars])
+    np.testing.assert_allclose(lefts, MASS_EDGES[:-1], rtol=1e-12)
+    np.testing.assert_allclose(rights, MASS_EDGES[1:], rtol=1e-12)
+    r = entry.comparisons[0].ratio[1:-1]
+    lo, hi = rx.get_ylim()
+    assert lo < 1.0 < hi
+    fin = r[np.isfinite(r)]
+    assert fin.size > 10
+    assert np.all((fin > lo) & (fin < hi))
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)

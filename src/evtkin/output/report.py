@@ -156,10 +156,9 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
     # each note once: numbered below the table, the rows refer to the numbers
     note_ids: dict[str, int] = {}
     row_notes: list[list[int]] = []
-    for r in rows:
-        ids = []
-        for n in filter(None, (x.strip() for x in str(r["notes"]).split("; "))):
-            ids.append(note_ids.setdefault(n, len(note_ids) + 1))
+    for _entry, c in cs.comparisons():  # the rows' order
+        ids = [note_ids.setdefault(n, len(note_ids) + 1)
+               for n in dict.fromkeys((*c.chi2.notes, *c.notes))]
         row_notes.append(ids)
     body.append("<h2>Summary, smallest p-value first</h2>")
     body.append(
