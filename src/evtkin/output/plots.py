@@ -142,7 +142,9 @@ def options_for(hname: str, meta: Mapping[str, Any], overrides: Mapping[str, Any
     for the histogram ← ``overrides`` (the command line). ``meta["plot"]`` is results.json's
     ``plot`` record."""
     rec = dict(meta.get("plot") or {})
-    per_hist = dict((rec.pop("histograms", None) or {}).get(hname) or {})
+    hists = rec.pop("histograms", None) or {}
+    # a region's copy NAME@REGION is drawn like NAME unless it has options of its own
+    per_hist = dict(hists.get(hname) or hists.get(hname.split("@", 1)[0]) or {})
     opts = base or PlotOptions()
     opts = opts.updated({k: v for k, v in rec.items() if k in OPTION_KEYS})
     opts = opts.updated({k: v for k, v in per_hist.items() if k in OPTION_KEYS})
@@ -733,6 +735,7 @@ def _curves(hname: str, present: list[Any], measured: Mapping[str, Any], opts: P
             s = by_name[n]
             out.append(curve_from_result(hist_of(s), s.label or n, "points", opts.colour(n), n))
         elif n in measured and hname in (measured[n].get("tables") or {}):
+            # (a region's copy NAME@REGION has its own selection: only its own table is drawn)
             t = MeasuredTable.from_dict(measured[n]["tables"][hname], f"measured {n}.{hname}")
             if t.y_unit != first.y_unit:
                 raise ResultsError(
