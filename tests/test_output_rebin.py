@@ -27,7 +27,8 @@ def _filled(edges: np.ndarray, mode: str, include_flow: bool = True) -> object:
                                                            unit="GeV"),), "toy"), ("up", "dn"))
     acc.fill(x, weight=w, variations=wv)
     nh = normalise(acc, mode, luminosity_fb=140.0, include_flow=include_flow)
-    band = envelope(nh.values[0], nh.values[1:])
+    rows = nh.all_rows()  # the nominal and every variation
+    band = envelope(rows[0], rows[1:])
     return hist_result(nh, {"scale": band}, keep_variations=True)
 
 

@@ -122,8 +122,14 @@ def rebin_result(h: Any, rebin: int | Sequence[float]) -> Any:
 
     kind = ax.kind if isinstance(rebin, (int, np.integer)) else "variable"
     new_axis = dataclasses.replace(ax, edges=new_edges, kind=kind)
+    extra: dict[str, Any] = {}
+    names = {f.name for f in dataclasses.fields(h)}
+    if "rows" in names:  # the in-memory rows of every weight are not rebinned: left out
+        extra.update(rows=None, row_variances=None)
+    if "counts" in names and getattr(h, "counts", None) is not None:
+        extra["counts"] = merge_bins(np.asarray(h.counts, dtype=float), groups)
     out = dataclasses.replace(
-        h, axes=[new_axis], values=values, variances=np.maximum(variances, 0.0),
+        h, axes=[new_axis], values=values, variances=np.maximum(variances, 0.0), **extra,
         bands={k: band(b) for k, b in h.bands.items()},
         shape_bands={k: shape_band(b) for k, b in (h.shape_bands or {}).items()},
         variation_values=None if h.variation_values is None else {
