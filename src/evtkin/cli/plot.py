@@ -29,7 +29,7 @@ def _measured(text: str) -> tuple[str, str]:
 
 
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
-    p = subparsers.add_parser(
+    p: argparse.ArgumentParser = subparsers.add_parser(
         "plot",
         help="re-draw the plots of a results folder with other options (no re-run)",
         description=(
