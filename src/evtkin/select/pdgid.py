@@ -74,7 +74,7 @@ def is_baryon(pdgid: Array) -> Any:
 
 def _is_hadron(a: np.ndarray) -> np.ndarray:
     meson, baryon = _hadron_parts(a)
-    return meson | baryon
+    return np.asarray(meson | baryon, dtype=np.bool_)
 
 
 def is_hadron(pdgid: Array) -> Any:
@@ -83,7 +83,7 @@ def is_hadron(pdgid: Array) -> Any:
 
 def _has_quark(a: np.ndarray, q: int) -> np.ndarray:
     q1, q2, q3, _ = quark_digits(a)
-    return _is_hadron(a) & ((q1 == q) | (q2 == q) | (q3 == q))
+    return np.asarray(_is_hadron(a) & ((q1 == q) | (q2 == q) | (q3 == q)), dtype=np.bool_)
 
 
 def has_bottom(pdgid: Array) -> Any:
