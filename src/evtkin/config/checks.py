@@ -147,7 +147,8 @@ def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
         if spec.format != "root":
             for oname, o in cfg.objects.items():
                 if not o.pdgids:
-                    raise ctx.error(("objects", oname), f"sample {sname!r} is an LHE file: give "
+                    raise ctx.error(("objects", oname),
+                                    f"sample {sname!r} is an {spec.format.upper()} file: give "
                                     "particles = [...] (from = ... is for ROOT ntuples)")
                 if o.require is not None:
                     _check_expression_names(ctx, ("objects", oname, "require"), o.require,

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Any
 
@@ -11,7 +12,15 @@ from evtkin.errors import ConfigError
 
 #: what a folder given in ``files`` contributes: its files with these endings, by format
 _FOLDER_SUFFIXES = {"lhe": (".lhe", ".lhe.gz", ".lhe.zst", ".lhe.bz2", ".lhe.xz", ".lhef"),
-                    "root": (".root",)}
+                    "root": (".root",),
+                    "hepmc": (".hepmc", ".hepmc.gz", ".hepmc.zst", ".hepmc.bz2", ".hepmc.xz",
+                              ".hepmc3", ".hepmc2")}
+#: a sample without ``format``: its folders contribute LHE and HepMC files, and the format is
+#: recognised from the first file's content
+_FOLDER_SUFFIXES["auto"] = _FOLDER_SUFFIXES["lhe"] + _FOLDER_SUFFIXES["hepmc"]
+#: a HepMC ASCII file starts with this line (HepMC 2 and 3 ASCII forms), after the version line
+_HEPMC_START = re.compile(rb"^HepMC::(Asciiv3|IO_GenEvent)-START_EVENT_LISTING", re.M)
+_SNIFF_BYTES = 4096
 _GLOB = set("*?[")
 
 
@@ -64,13 +73,16 @@ def _read_samples(top: _Table, base: Path, lumi: float | None,
         files = s.strings("files")
         if not files:
             raise s.ctx.error((*s.path, "files"), "expected at least one file")
-        fmt = s.string("format", "lhe", choices=SAMPLE_FORMATS)
+        fmt = s.string("format", None, choices=SAMPLE_FORMATS)
+        paths = _expand_files(s, files, fmt or "auto", base, warnings)
+        if fmt is None:
+            fmt = _format_of_content(paths)
         ntuple = _read_ntuple_sample(s, fmt, base)
         weight = s.expression("weight") if s.has("weight") else None
         s.known.append("weight")
         out[name] = SampleSpec(
             name=name,
-            files=_expand_files(s, files, fmt, base, warnings),
+            files=paths,
             label=s.string("label", name),
             cross_section_pb=s.number("cross_section_pb", None, positive=True),
             luminosity_fb=s.number("luminosity_fb", lumi, positive=True),
@@ -82,6 +94,22 @@ def _read_samples(top: _Table, base: Path, lumi: float | None,
         s.done()
     t.done()
     return out
+
+
+def _format_of_content(paths: tuple[Path, ...]) -> str:
+    """The format of a sample that names none: ``"hepmc"`` when its first file (decompressed)
+    begins with a HepMC header, else ``"lhe"`` (a file that cannot be read yet is left to the
+    reader to report)."""
+    from evtkin.io.sources import open_binary
+
+    if not paths or not paths[0].is_file():
+        return "lhe"
+    try:
+        with open_binary(paths[0]) as fh:
+            head = fh.read(_SNIFF_BYTES)
+    except Exception:  # unreadable: the reader names the problem later
+        return "lhe"
+    return "hepmc" if _HEPMC_START.search(head) else "lhe"
 
 
 def _read_ntuple_sample(s: _Table, fmt: str, base: Path) -> dict[str, Any]:

@@ -28,7 +28,7 @@ PARTICLE_CLASSES: dict[str, tuple[int, ...]] = dict(PDG_CLASSES)
 NORMALISATIONS = ("raw", "xsec_per_bin", "events", "unit_area")
 
 #: values of ``[samples.NAME] format`` (each has an input source in evtkin.run.inputs)
-SAMPLE_FORMATS = ("lhe", "root")
+SAMPLE_FORMATS = ("lhe", "root", "hepmc")
 
 COMPOSITE_BUILDS = ("pair", "leptonic_w", "ttbar_lepton_jets")
 OUTPUT_FORMATS = ("root", "json", "csv", "cutflow", "plots", "report")

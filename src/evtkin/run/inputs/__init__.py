@@ -5,13 +5,16 @@ from __future__ import annotations
 
 from evtkin.errors import ConfigError
 from evtkin.run.inputs.base import InputSource, UnitReading
+from evtkin.run.inputs.hepmc import HepMCSource
 from evtkin.run.inputs.lhe import LHESource
 from evtkin.run.inputs.ntuple import NtupleSource
 
 __all__ = ["SOURCES", "InputSource", "UnitReading", "input_source"]
 
 #: format name → its source
-SOURCES: dict[str, InputSource] = {s.format: s for s in (LHESource(), NtupleSource())}
+SOURCES: dict[str, InputSource] = {
+    s.format: s for s in (LHESource(), NtupleSource(), HepMCSource())
+}
 
 
 def input_source(fmt: str) -> InputSource:
