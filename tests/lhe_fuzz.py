@@ -49,6 +49,8 @@ SNIPPETS = (
     "<!--", "-->\n", "<!-- x -->\n", "# note\n", "<mgrwt>\n", "</mgrwt>\n",
     '<LesHouchesEvents version="3.0">\n', "</LesHouchesEvents>\n", "<event/>\n", "<", ">",
     " 1 2 3 4 5 6\n", " 11 1 0 0 0 0 1 2 3 4 0 0 9\n", "<scales a='1>\n", "&#xD800;",
+    "</event\t>\n", "</event \n >\n", "# <!--\n", "# </event>\n", "# <event>\n",
+    "# a <!-- b --> c\n", "<!-->\n",
 )  # fmt: skip
 #: number-like tokens a mutation may put in place of a number
 TOKENS = (
@@ -260,11 +262,19 @@ def check(text: str, events: list[str], workdir: str, max_seconds: float = math.
             problems.append(f"strict={strict}: warnings differ: {a.warnings} / {b.warnings}")
     if outs["numba", True].kind == "ok":  # the event count of evtkin info agrees
         from evtkin.cli.info import count_events
+        from evtkin.io import lhe_header
 
-        n = count_events(path)
-        if n != len(outs["numba", True].records):
-            problems.append(f"count: evtkin info counts {n} events, read_lhe delivers "
-                            f"{len(outs['numba', True].records)}")
+        n_read = len(outs["numba", True].records)
+        saved = lhe_header._COUNT_BLOCK
+        try:
+            for block in (saved, 5):  # small read blocks: marks straddle them
+                lhe_header._COUNT_BLOCK = block
+                n = count_events(path)
+                if n != n_read:
+                    problems.append(f"count: evtkin info counts {n} events (read blocks of "
+                                    f"{block} bytes), read_lhe delivers {n_read}")
+        finally:
+            lhe_header._COUNT_BLOCK = saved
     for scanner in ("numba", "fallback"):
         s, le = outs[scanner, True], outs[scanner, False]
         if s.kind == "ok" and le.kind == "ok" and s.records != le.records:

@@ -230,3 +230,80 @@ def test_a_million_character_bad_token_is_diagnosed(tmp_path, scanner, where):
     path = write(tmp_path, body)
     with pytest.raises(evtkin.LHEError, match="expected a number, found '1111"):
         weights_of(path)
+
+
+# XML 1.0 sec. 3.1: a close tag is '</' Name S? '>': white space may precede the '>'
+SPACED_CLOSES = ["</event\t>", "</event >", "</event\n  >", "</event\r\n>"]
+
+
+@pytest.mark.parametrize("close", SPACED_CLOSES)
+def test_close_tag_with_white_space_is_read_and_counted(tmp_path, scanner, close):
+    body = ev(1) + ev(2).replace("</event>", close) + ev(3)
+    path = write(tmp_path, body)
+    assert weights_of(path) == [1.0, 2.0, 3.0]
+    assert count_events(str(path)) == 3
+    assert evtkin.lhe_info(path, count=True).n_events == 3
+    assert evtkin.lhe_info(path).n_events is None  # only the start of the file is read
+
+
+def test_count_is_the_same_for_every_read_block_size(tmp_path, monkeypatch):
+    # marks (a comment start or end, a spaced close tag) cut by a block boundary count once
+    from evtkin.io import lhe_header
+
+    body = (ev(1).replace("</event>", "</event \t\n >") + "<!-->\n" + ev(2) + "-->\n"
+            + ev(3).replace("</event>", "</event\t>") + "<!-- </event\t> -->" + ev(4))
+    path = write(tmp_path, body)
+    expected = len(weights_of(path))
+    assert expected == 3  # the event inside the comment is no event
+    for block in range(1, 40):
+        monkeypatch.setattr(lhe_header, "_COUNT_BLOCK", block)
+        assert count_events(str(path)) == expected, block
+
+
+def test_gzip_count_with_spaced_close_tags(tmp_path):
+    body = "".join(ev(k).replace("</event>", "</event\t>") for k in range(1, 6))
+    path = tmp_path / "spaced.lhe.gz"
+    path.write_bytes(gzip.compress(minimal_file(body, head=HEAD).encode()))
+    assert count_events(str(path)) == len(weights_of(path)) == 5
+
+
+@pytest.mark.parametrize("markup", ["</event>", "<event>", "<!-- open"])
+def test_hash_line_does_not_hide_event_markup(tmp_path, scanner, markup):
+    # '#' lines inside an event are text, but '<' always starts markup in XML (1.0 sec. 2.4):
+    # an event tag or a comment start in such a line is read as one, as evtkin info does
+    body = ev(1) + ev(2, f"# note {markup}\n") + ev(3)
+    path = write(tmp_path, body)
+    text = path.read_text()
+    hash_line = line_of(text, "# note")
+    # a close tag there closes the event: the event's own </event> is then the stray one
+    line = hash_line + 5 if markup == "</event>" else hash_line
+    assert text.splitlines()[line - 1] in ("</event>", f"# note {markup}")
+    with pytest.raises(evtkin.LHEError, match=f"line {line}:"):
+        weights_of(path)
+    got, warning = lenient(path)
+    # a close tag ended event 2 early (before its weights): it is delivered, the stray
+    # </event> after it is skipped; an open tag or comment damages event 2 itself
+    assert got == ([1.0, 2.0, 3.0] if markup == "</event>" else [1.0, 3.0])
+    assert f"the first: line {line}:" in warning
+
+
+def test_hash_line_with_a_closed_comment_is_fine(tmp_path, scanner):
+    body = ev(1) + ev(2, "# note <!-- x --> text\n# <b>text <events> </eventual>\n") + ev(3)
+    path = write(tmp_path, body)
+    assert weights_of(path) == [1.0, 2.0, 3.0]
+    assert count_events(str(path)) == 3
+
+
+def test_byte_ranges_skip_an_event_inside_a_comment_opened_by_a_bare_arrow(tmp_path, scanner):
+    # XML 1.0 sec. 2.5: '<!-->' opens a comment that the '-->' after it closes; the event
+    # between is commented out, also for a byte range that starts right before it
+    body = ev(1) + "<!-->\n" + ev(2) + "-->\n" + ev(3)
+    path = write(tmp_path, body)
+    assert weights_of(path) == [1.0, 3.0]
+    raw = path.read_bytes()
+    size = len(raw)
+    for cut in sorted({m.start() for m in re.finditer(rb"<event>", raw)}):
+        for shift in (0, -1, 1):
+            got = [w for rng in ((0, cut + shift), (cut + shift, size))
+                   for arr in evtkin.read_lhe(path, byte_range=rng) for w in ak.to_list(arr.weight)]
+            assert got == [1.0, 3.0], (cut, shift)

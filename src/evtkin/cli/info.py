@@ -5,10 +5,9 @@ from __future__ import annotations
 
 import argparse
 import json
-import re
 from typing import Any
 
-from evtkin.io.lhe_header import LHEInfo, open_lhe
+from evtkin.io.lhe_header import LHEInfo, lhe_info
 from evtkin.io.sources import compressed_size, detect_compression
 
 _WEIGHTING = {
@@ -23,52 +22,22 @@ _WEIGHTING = {
 }
 
 
-_COUNT_MARKS = re.compile(rb"<!--|-->|</event>")
-
-
 def count_events(path: str) -> int:
-    """Number of ``</event>`` tags after ``</init>`` outside XML comments (a fast byte
-    scan, no parsing): the number of events ``read_lhe`` delivers for a file it accepts."""
-    stream, rest, _info = open_lhe(path)
-    n = 0
-    in_comment = False
-    tail = b""
-    try:
-        block = rest or stream.read(1 << 23)
-        while True:
-            joined = tail + block
-            limit = len(joined) - 7 if block else len(joined)  # marks are at most 8 bytes
-            cut = limit
-            for m in _COUNT_MARKS.finditer(joined):
-                if m.start() >= limit:
-                    break
-                mark = m.group()
-                if in_comment:
-                    in_comment = mark != b"-->"
-                elif mark == b"<!--":
-                    in_comment = True
-                elif mark == b"</event>":
-                    n += 1
-                cut = max(cut, m.end())
-            if not block:
-                break
-            tail = joined[cut:]
-            block = stream.read(1 << 23)
-    finally:
-        stream.close()
+    """Number of events in the LHE file ``path`` (``lhe_info(path, count=True)``): the
+    number ``read_lhe`` delivers for a file it accepts."""
+    n = lhe_info(path, count=True).n_events
+    assert n is not None
     return n
 
 
 def summary(path: str, *, count: bool = True) -> dict[str, Any]:
     """The JSON form of ``evtkin info``."""
-    stream, _rest, info = open_lhe(path)
-    stream.close()
+    info = lhe_info(path, count=count)
     d = info.to_dict()
     d["compression"] = detect_compression(path) or "none"
     d["file_bytes"] = compressed_size(path)
     d["weighting_meaning"] = _WEIGHTING.get(info.weighting, "non-standard IDWTUP")
     d["n_weights_by_group"] = _weights_by_group(info)
-    d["n_events"] = count_events(path) if count else None
     return d
 
 

@@ -712,8 +712,9 @@ def _in_comment(fh: BinaryIO, pos: int, lo: int) -> int:
     a = max(lo, pos - _WINDOW)
     fh.seek(a)
     before = fh.read(pos - a)
-    o, e = before.rfind(b"<!--"), before.rfind(b"-->")
-    if o < 0 or o < e:
+    o = before.rfind(b"<!--")
+    # the comment's end comes after its opening '<!--' (in '<!-->' it is not yet closed)
+    if o < 0 or before.find(b"-->", o + 4) >= 0:
         return -1
     end = _find(fh, re.compile(re.escape(b"-->")), pos, 1 << 62)
     return end + 3 if end >= 0 else 1 << 62

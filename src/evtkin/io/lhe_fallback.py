@@ -72,6 +72,8 @@ _TOKEN = re.compile(rb"[^ \t\r\n<]+")
 #: the tags that bound events (lhe_scan._event_boundary)
 _BOUNDARY = re.compile(rb"</?(?:event(?:group)?|LesHouchesEvents)[ \t\r\n>/<]")
 _CLOSE_BOUNDARY = re.compile(rb"</(?:event(?:group)?|LesHouchesEvents)[ \t\r\n>/<]")
+#: where a '#' text line inside an event stops before its newline
+_HASH_STOP = re.compile(rb"<!--|</?(?:event(?:group)?|LesHouchesEvents)[ \t\r\n>/<]")
 _I32_MIN, _I32_MAX = -(2**31), 2**31 - 1
 
 
@@ -390,9 +392,12 @@ def _optional_part(
         if pos >= n:
             raise _Stop(ST_INCOMPLETE)
         c = data[pos]
-        if c == 35 and not in_rwgt:  # '#'
+        if c == 35 and not in_rwgt:  # '#' line: text, but a comment or an event
+            # boundary tag in it is markup (lhe_scan: the same rule)
             e = data.find(b"\n", pos)
-            pos = n if e < 0 else e
+            e = n if e < 0 else e
+            mh = _HASH_STOP.search(data, pos, min(e + 1, n))
+            pos = mh.start() if mh is not None and mh.start() < e else e
             continue
         if c != 60:
             if not in_rwgt and c in b"+-.0123456789":

@@ -18,13 +18,13 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import BinaryIO
 
 from evtkin.errors import LHEError
 from evtkin.io.sources import Source, compressed_size, open_binary, read_error, source_name
 
-__all__ = ["LHEInfo", "Process", "lhe_info", "read_preamble"]
+__all__ = ["LHEInfo", "Process", "count_events", "lhe_info", "read_preamble"]
 
 
 @dataclass(frozen=True)
@@ -69,6 +69,8 @@ class LHEInfo:
     events_offset: int = 0
     #: 1-based line number of the line holding ``</init>``
     init_end_line: int = 0
+    #: number of events (``lhe_info(..., count=True)`` only; else ``None``)
+    n_events: int | None = None
 
     @property
     def total_xsec_pb(self) -> float:
@@ -112,6 +114,7 @@ class LHEInfo:
             "weight_groups": {k: list(v) for k, v in self.weight_groups.items()},
             "xsecinfo": dict(self.xsecinfo),
             "generators": [list(g) for g in self.generators],
+            "n_events": self.n_events,
         }
 
 
@@ -581,16 +584,66 @@ def open_lhe(source: Source) -> tuple[BinaryIO, bytes, LHEInfo]:
     return stream, data[info.events_offset :], info
 
 
-def lhe_info(source: Source) -> LHEInfo:
+#: what the event count looks for outside comments: a comment start, or an ``</event``
+#: close tag (XML 1.0 sec. 3.1: white space may precede its ``>``), recognised as the
+#: scanners recognise it (the name followed by white space, ``>`` or ``/``)
+_COUNT_MARKS = re.compile(rb"<!--|</event[ \t\r\n>/]")
+_MARK_MAX = 8  # the longest mark, in bytes
+_COUNT_BLOCK = 1 << 23
+
+
+def count_events(stream: BinaryIO, rest: bytes) -> int:
+    """Number of ``</event>`` close tags outside XML comments in ``rest`` followed by the
+    rest of ``stream`` (a fast byte scan, no parsing): the number of events ``read_lhe``
+    delivers for a file it accepts. Marks that straddle two read blocks count once."""
+    n = 0
+    in_comment = False
+    tail = b""
+    block = rest or stream.read(_COUNT_BLOCK)
+    while True:
+        data = tail + block
+        # a mark starting before ``limit`` lies wholly in ``data``; later ones are
+        # looked at again with the next block
+        limit = len(data) - (_MARK_MAX - 1) if block else len(data)
+        pos = 0
+        while pos < limit:
+            if in_comment:  # XML 1.0 sec. 2.5: a comment ends at the first '-->'
+                e = data.find(b"-->", pos)
+                if e < 0 or e >= limit:
+                    break
+                in_comment = False
+                pos = e + 3
+                continue
+            m = _COUNT_MARKS.search(data, pos)
+            if m is None or m.start() >= limit:
+                break
+            if m.group() == b"<!--":
+                in_comment = True
+            else:
+                n += 1
+            pos = m.end()
+        if not block:
+            return n
+        tail = data[max(pos, limit) :]
+        block = stream.read(_COUNT_BLOCK)
+
+
+def lhe_info(source: Source, *, count: bool = False) -> LHEInfo:
     """Read the run information (``<init>``, weight declarations) of an LHE file.
 
     ``source`` is a path to a plain or compressed (gzip, zstd, bz2, xz) LHE file. Only
-    the start of the file is read. Raises :class:`~evtkin.errors.LHEError` naming the file
-    and line for a malformed preamble or a file that is not LHE.
+    the start of the file is read, unless ``count=True``: then the whole file is scanned
+    and ``n_events`` holds the number of events (as many as ``read_lhe`` delivers for a
+    file it accepts). Raises :class:`~evtkin.errors.LHEError` naming the file and line for
+    a malformed preamble or a file that is not LHE.
     """
     compressed_size(source)  # a clear error for a missing file
-    stream, _rest, info = open_lhe(source)
-    stream.close()
+    stream, rest, info = open_lhe(source)
+    try:
+        if count:
+            info = replace(info, n_events=count_events(stream, rest))
+    finally:
+        stream.close()
     return info
 
 

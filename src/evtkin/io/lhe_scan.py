@@ -884,8 +884,15 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                             pos = e + 2
                             state = 6
                             continue
-            if c == 35 and state == 4:  # '#' comment line
+            if c == 35 and state == 4:  # '#' comment line: text up to its newline, but a
+                # comment or an event boundary tag in it is markup (as everywhere in XML)
                 while pos < n and buf[U(pos)] != 10:
+                    if buf[U(pos)] == 60 and (
+                        (pos + 3 < n and buf[U(pos + 1)] == 33 and buf[U(pos + 2)] == 45
+                         and buf[U(pos + 3)] == 45)
+                        or _event_boundary(buf, pos, n)
+                    ):
+                        break
                     pos += 1
                 continue
             if c != 60:
