@@ -112,6 +112,10 @@ def _first_chunk(plan: Any, name: str) -> Any:
             return next(iter(reader))
         finally:
             reader.close()
+    if spec.format == "hepmc":
+        from evtkin.io.hepmc import read_hepmc
+
+        return next(iter(read_hepmc(spec.files[0], step_size=N_EVENTS)))
     from evtkin.io.lhe import read_lhe
 
     return next(iter(read_lhe(spec.files[0], step_size=N_EVENTS)))
@@ -210,11 +214,15 @@ KEYS: dict[str, tuple[str, ...]] = {
     "samples": ("files", "label", "format", "cross_section_pb", "luminosity_fb", "toy", "input",
                 "weights_give", "truth_files", "weight"),
     "objects": ("particles", "status", "min_pt", "max_abs_eta", "max_abs_rapidity",
-                "from_decay_of", "isolation", "clustering", "require", "from"),
-    "objects.isolation": ("against", "against_objects", "within_dr", "min_pt"),
-    "objects.clustering": ("algorithm", "radius"),
+                "from_decay_of", "isolation", "clustering", "require", "from", "prompt",
+                "dressing"),
+    "objects.isolation": ("against", "against_objects", "within_dr", "min_pt",
+                          "max_relative_pt"),
+    "objects.clustering": ("algorithm", "radius", "inputs", "exclude", "ghosts",
+                           "ghost_min_pt"),
+    "objects.dressing": ("radius",),
     "overlap_removal": ("remove", "near", "within_dr"),
-    "missing_pt": ("name", "particles", "from"),
+    "missing_pt": ("name", "particles", "from", "prompt"),
     "step": ("name", "require"),
     "composites.pair": ("build", "of", "mass_window", "min_dr", "max_dr", "opposite_charge",
                         "same_flavour", "best_mass"),

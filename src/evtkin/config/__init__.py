@@ -7,12 +7,17 @@ The vocabulary (see ``configs/*.toml`` for complete examples)::
     [samples.NAME]        files, label, cross_section_pb, luminosity_fb, toy, format,
                           and for format = "root": input (the branch mapping of
                           evtkin.io.ntuple_mapping), weights_give, truth_files
+                          (truth_files also for format = "hepmc")
     [objects.NAME]        particles, status, min_pt, max_abs_eta, max_abs_rapidity,
                           from_decay_of, isolation = {against, within_dr}, clustering = {radius},
                           from (an ntuple collection), require (a condition on object fields),
-                          isolation = {against_objects, within_dr}
+                          isolation = {against_objects, within_dr},
+                          clustering = {algorithm, radius},
+                          particle level (HepMC): prompt, dressing = {radius},
+                          clustering = {inputs, exclude, ghosts, ghost_min_pt},
+                          isolation = {within_dr, max_relative_pt}
     [[overlap_removal]]   remove, near, within_dr               (applied in the order written)
-    [missing_pt]          name, particles, from (an ntuple vector)
+    [missing_pt]          name, particles, from (an ntuple vector), prompt (HepMC)
     [[step]]              name, require                         (an ordered event selection)
     [composites.NAME]     build = "pair" | "leptonic_w" | "ttbar_lepton_jets" + options
     [quantities]          NAME = "expression"   (a number per event or object, or an object)

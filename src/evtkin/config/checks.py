@@ -143,9 +143,17 @@ def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
         for other in o.isolation_objects:
             _check_name(ctx, ("objects", oname, "isolation", "against_objects"), other,
                         [n for n in cfg.objects if n != oname], "object collection")
+    _check_particle_level(ctx, cfg)
     for sname, spec in cfg.samples.items():
         if spec.format != "root":
             for oname, o in cfg.objects.items():
+                if not o.pdgids and o.cluster_inputs == "stable":
+                    if spec.truth_files and any(h.response for h in cfg.histograms.values()):
+                        raise ctx.error(("objects", oname, "clustering", "inputs"),
+                                        f"sample {sname!r} has truth_files: give particles = "
+                                        "[...] too (the jets' inputs in the generator-level "
+                                        "events, e.g. [\"jets_with_b\"])")
+                    continue
                 if not o.pdgids:
                     raise ctx.error(("objects", oname),
                                     f"sample {sname!r} is an {spec.format.upper()} file: give "
@@ -187,6 +195,50 @@ def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
         if not with_truth:
             raise ctx.error(("histograms", hname, "response"), "no sample of this histogram has "
                             "truth_files (generator-level events to match)")
+
+
+def _particle_level_keys(cfg: AnalysisConfig) -> list[tuple[Path_, str]]:
+    """(key path, key as written) of every particle-level recipe the config asks for."""
+    out: list[tuple[Path_, str]] = []
+    for oname, o in cfg.objects.items():
+        for key in o.particle_level:
+            out.append((("objects", oname, *key.split(".")), f"objects.{oname}.{key}"))
+    if cfg.missing_pt is not None and cfg.missing_pt.prompt:
+        out.append((("missing_pt", "prompt"), "missing_pt.prompt"))
+    return out
+
+
+def _check_particle_level(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    """Particle-level recipes (prompt, dressing, clustering inputs/exclude/ghosts, prompt
+    missing pT) need showered events with their decay graph: HepMC samples only. Collections
+    left out of a clustering must not leave each other out in a circle."""
+    keys = _particle_level_keys(cfg)
+    if keys:
+        for sname, spec in cfg.samples.items():
+            if spec.format == "hepmc":
+                continue
+            path, written = keys[0]
+            what = ("an LHE file (parton level: no stable particles, no decay graph)"
+                    if spec.format == "lhe" else "a ROOT ntuple (reconstructed collections)")
+            raise ctx.error(path, f"{written} is a particle-level recipe for showered events "
+                            f"(format = \"hepmc\"), but sample {sname!r} is {what}")
+    state: dict[str, int] = {}
+
+    def visit(name: str, trail: list[str]) -> None:
+        if state.get(name) == 2:
+            return
+        if state.get(name) == 1:
+            cycle = " → ".join([*trail[trail.index(name):], name])
+            raise ctx.error(("objects", name, "clustering", "exclude"),
+                            f"collections leave each other out of their clustering: {cycle}")
+        state[name] = 1
+        for other in cfg.objects[name].cluster_exclude:
+            if other in cfg.objects:
+                visit(other, [*trail, name])
+        state[name] = 2
+
+    for oname in cfg.objects:
+        visit(oname, [])
 
 
 def _check_met(ctx: _Ctx, cfg: AnalysisConfig, path: Path_, name: str) -> None:

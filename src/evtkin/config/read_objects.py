@@ -6,7 +6,11 @@ from collections.abc import Mapping
 
 from evtkin.config.keylines import Path_
 from evtkin.config.schema import (
+    CLUSTER_ALGORITHMS,
+    CLUSTER_INPUTS,
     EVENT_FIELDS,
+    EXCLUDE_INVISIBLES,
+    GHOST_LABELS,
     PARTICLE_CLASSES,
     MissingPtSpec,
     ObjectSpec,
@@ -40,7 +44,9 @@ def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[s
         o = t.table(name)
         assert o is not None
         source = o.strings("from", None)
-        if source is None or o.has("particles"):
+        clus_raw = o.data.get("clustering")
+        all_stable = isinstance(clus_raw, dict) and clus_raw.get("inputs") == "stable"
+        if o.has("particles") or (source is None and not all_stable):
             ids, names = _particle_ids(o, "particles", classes)
         else:
             ids, names = (), ()
@@ -58,19 +64,62 @@ def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[s
         iso_pt = 0.0
         iso = o.table("isolation")
         iso_objs: tuple[str, ...] = ()
+        iso_rel = None
         if iso is not None:
-            iso_objs = iso.strings("against_objects", ())
-            if not iso_objs or iso.has("against"):
-                iso_ids, _ = _particle_ids(iso, "against", classes)
+            iso_rel = iso.number("max_relative_pt", None, positive=True)
+            if iso_rel is not None:
+                for key in ("against", "against_objects", "min_pt"):
+                    if iso.has(key):
+                        raise iso.ctx.error(
+                            (*iso.path, key),
+                            "not with max_relative_pt (relative isolation sums the pT of every "
+                            "stable visible particle in the cone)")
+            else:
+                iso_objs = iso.strings("against_objects", ())
+                if not iso_objs or iso.has("against"):
+                    iso_ids, _ = _particle_ids(iso, "against", classes)
             iso_dr = iso.number("within_dr", positive=True)
             iso_pt = iso.number("min_pt", 0.0, nonnegative=True)
             iso.done()
         radius = None
+        algorithm = "anti-kt"
+        inputs = "selected"
+        exclude: tuple[str, ...] = ()
+        ghosts: tuple[str, ...] = ()
+        ghost_pt = 5.0  # common practice: B hadrons above 5 GeV
         clus = o.table("clustering")
         if clus is not None:
-            clus.string("algorithm", "anti-kt", choices=("anti-kt",))
+            algorithm = clus.string("algorithm", "anti-kt", choices=CLUSTER_ALGORITHMS)
             radius = clus.number("radius", positive=True)
+            inputs = clus.string("inputs", "selected", choices=CLUSTER_INPUTS)
+            exclude = clus.strings("exclude", ())
+            for k, ex in enumerate(exclude):
+                if ex == name:
+                    raise clus.ctx.error(_item(clus.path, "exclude", k, len(exclude)),
+                                         "a collection cannot be left out of itself")
+                if ex != EXCLUDE_INVISIBLES and ex not in t.data:
+                    _check_name(clus.ctx, _item(clus.path, "exclude", k, len(exclude)), ex,
+                                [*[n for n in t.data if n != name], EXCLUDE_INVISIBLES],
+                                "object collection (or 'invisibles')")
+            ghosts = clus.strings("ghosts", ())
+            for k, g in enumerate(ghosts):
+                if g not in GHOST_LABELS:
+                    raise clus.ctx.error(
+                        _item(clus.path, "ghosts", k, len(ghosts)),
+                        f"expected one of {', '.join(map(repr, GHOST_LABELS))}, got {g!r}")
+            ghost_pt = clus.number("ghost_min_pt", 5.0, nonnegative=True)
+            if clus.has("ghost_min_pt") and not ghosts:
+                raise clus.ctx.error((*clus.path, "ghost_min_pt"), "needs ghosts = [...]")
             clus.done()
+        dressing = None
+        dress = o.table("dressing")
+        if dress is not None:
+            dressing = dress.number("radius", positive=True)
+            dress.done()
+            if clus is not None:
+                raise o.ctx.error((*o.path, "dressing"), "dressed leptons are not clustered: "
+                                  "give dressing or clustering, not both")
+        prompt = o.boolean("prompt", False)
         out[name] = ObjectSpec(
             name=name,
             pdgids=ids,
@@ -87,6 +136,14 @@ def _read_objects(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> dict[s
             source=source,
             require=require,
             isolation_objects=iso_objs,
+            cluster_algorithm=algorithm,
+            isolation_max_relative=iso_rel,
+            prompt=prompt,
+            dressing_radius=dressing,
+            cluster_inputs=inputs,
+            cluster_exclude=exclude,
+            ghosts=ghosts,
+            ghost_min_pt=ghost_pt,
         )
         o.done()
     t.done()
@@ -119,5 +176,11 @@ def _read_missing(top: _Table, classes: Mapping[str, tuple[int, ...]]) -> Missin
     name = t.string("name", "met")
     ids, _ = _particle_ids(t, "particles", classes, default=["neutrinos"])
     source = t.string("from", None)
+    prompt = t.boolean("prompt", False)
     t.done()
-    return MissingPtSpec(name, ids, source)
+    return MissingPtSpec(name, ids, source, prompt)
+
+
+def _item(path: Path_, key: str, k: int, n: int) -> Path_:
+    """The path of entry ``k`` of the list ``key`` (of ``n`` entries; a lone string: the key)."""
+    return (*path, key, k) if n > 1 else (*path, key)

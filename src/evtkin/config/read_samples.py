@@ -118,9 +118,13 @@ def _read_ntuple_sample(s: _Table, fmt: str, base: Path) -> dict[str, Any]:
     from evtkin.io.ntuple_mapping import NtupleMapping
 
     if fmt != "root":
-        for key in ("input", "weights_give", "truth_files"):
+        for key in ("input", "weights_give") + (("truth_files",) if fmt != "hepmc" else ()):
             if s.has(key):
-                raise s.ctx.error((*s.path, key), 'only for ROOT ntuples (format = "root")')
+                where = ('only for ROOT ntuples and HepMC samples' if key == "truth_files"
+                         else 'only for ROOT ntuples (format = "root")')
+                raise s.ctx.error((*s.path, key), where)
+        if fmt == "hepmc" and s.has("truth_files"):
+            return {"truth_files": _truth_paths(s, base)}
         return {}
     if not s.has("input"):
         s._missing("input", ' for format = "root" (the branch mapping: [samples.NAME.input])')
@@ -141,10 +145,13 @@ def _read_ntuple_sample(s: _Table, fmt: str, base: Path) -> dict[str, Any]:
         line = s.ctx.lines.line(parts) if s.ctx.lines is not None else None
         at = f"{s.ctx.source}:{line}" if line is not None else s.ctx.source
         raise ConfigError(f"{at}: {msg}") from None
-    truth = s.strings("truth_files", ())
     return {
         "input": mapping,
         "weights_give": s.string("weights_give", "mean", choices=("mean", "sum")),
-        "truth_files": tuple((base / f) if not Path(f).is_absolute() else Path(f)
-                             for f in truth),
+        "truth_files": _truth_paths(s, base),
     }
+
+
+def _truth_paths(s: _Table, base: Path) -> tuple[Path, ...]:
+    truth = s.strings("truth_files", ())
+    return tuple((base / f) if not Path(f).is_absolute() else Path(f) for f in truth)

@@ -30,6 +30,15 @@ NORMALISATIONS = ("raw", "xsec_per_bin", "events", "unit_area")
 #: values of ``[samples.NAME] format`` (each has an input source in evtkin.run.inputs)
 SAMPLE_FORMATS = ("lhe", "root", "hepmc")
 
+#: ``clustering = { algorithm = ... }``: the generalised-kT family (p = -1, 1, 0)
+CLUSTER_ALGORITHMS = ("anti-kt", "kt", "cambridge")
+#: ``clustering = { inputs = ... }``
+CLUSTER_INPUTS = ("selected", "stable")
+#: ``clustering = { ghosts = [...] }``: B hadrons, charm hadrons, hadronic τ
+GHOST_LABELS = ("b", "c", "tau")
+#: ``clustering = { exclude = [...] }``: this name stands for the invisible particles
+EXCLUDE_INVISIBLES = "invisibles"
+
 COMPOSITE_BUILDS = ("pair", "leptonic_w", "ttbar_lepton_jets")
 OUTPUT_FORMATS = ("root", "json", "csv", "cutflow", "plots", "report")
 PLOT_FORMATS = ("png", "pdf", "svg")
@@ -92,6 +101,43 @@ class ObjectSpec:
     source: tuple[str, ...] | None = None
     #: a condition on each object's fields (``require = "btag == 1 and iso < 0.1"``)
     require: Expression | None = None
+    #: the clustering algorithm (one of :data:`CLUSTER_ALGORITHMS`)
+    cluster_algorithm: str = "anti-kt"
+    #: relative isolation: keep objects whose scalar pT sum of the stable visible particles
+    #: within ``isolation_dr`` (the object's own particles left out) over the object's pT is
+    #: below this value
+    isolation_max_relative: float | None = None
+    # ---- particle-level recipes (showered events, HepMC samples); on the generator-level
+    # partner events of a response matrix (LHE truth_files) they are not applied
+    #: only prompt particles (not descended from a hadron)
+    prompt: bool = False
+    #: dressed leptons: photons within this ΔR added to the nearest lepton
+    dressing_radius: float | None = None
+    #: the clustering's inputs: ``"selected"`` (the particles of ``particles``/``status``)
+    #: or ``"stable"`` (every stable particle of the event, less ``cluster_exclude``)
+    cluster_inputs: str = "selected"
+    #: left out of the clustering: the particles of these collections (a dressed lepton
+    #: with its photons) and, for ``"invisibles"``, the invisible particles
+    cluster_exclude: tuple[str, ...] = ()
+    #: ghost labels of the jets (of :data:`GHOST_LABELS`) and the hadrons' pT threshold
+    ghosts: tuple[str, ...] = ()
+    ghost_min_pt: float = 5.0
+
+    @property
+    def particle_level(self) -> tuple[str, ...]:
+        """The particle-level recipe keys this definition uses (as written in the config)."""
+        out = []
+        if self.prompt:
+            out.append("prompt")
+        if self.dressing_radius is not None:
+            out.append("dressing")
+        if self.cluster_inputs != "selected":
+            out.append("clustering.inputs")
+        if self.cluster_exclude:
+            out.append("clustering.exclude")
+        if self.ghosts:
+            out.append("clustering.ghosts")
+        return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -107,6 +153,8 @@ class MissingPtSpec:
     pdgids: tuple[int, ...]
     #: ROOT ntuples: the mapped per-event vector holding the missing pT (``from = "NAME"``)
     source: str | None = None
+    #: particle level (HepMC samples): only prompt invisibles (not from hadron decays)
+    prompt: bool = False
 
 
 @dataclass(frozen=True)

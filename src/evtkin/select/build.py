@@ -13,12 +13,16 @@ from collections.abc import Callable, Collection, Mapping, Sequence
 from typing import Any, Protocol
 
 import awkward as ak
+import numpy as np
 
 from evtkin.errors import ConfigError
 from evtkin.expr import ATTRIBUTES, Expression, ExpressionError, evaluate
+from evtkin.select import decay_graph as dg
 from evtkin.select import jets as jetalg
 from evtkin.select import kinematics as kin
 from evtkin.select import objects as obj
+from evtkin.select import particle_level as pl
+from evtkin.select import pdgid as pid
 from evtkin.select import truth
 
 __all__ = [
@@ -31,6 +35,8 @@ __all__ = [
     "object_mask",
     "particle_object",
     "particle_objects",
+    "showered_object",
+    "showered_objects",
 ]
 
 
@@ -65,6 +71,22 @@ class ObjectDefinition(Protocol):
     def source(self) -> tuple[str, ...] | None: ...
     @property
     def require(self) -> Expression | None: ...
+    @property
+    def cluster_algorithm(self) -> str: ...
+    @property
+    def isolation_max_relative(self) -> float | None: ...
+    @property
+    def prompt(self) -> bool: ...
+    @property
+    def dressing_radius(self) -> float | None: ...
+    @property
+    def cluster_inputs(self) -> str: ...
+    @property
+    def cluster_exclude(self) -> tuple[str, ...]: ...
+    @property
+    def ghosts(self) -> tuple[str, ...]: ...
+    @property
+    def ghost_min_pt(self) -> float: ...
 
 
 class OverlapDefinition(Protocol):
@@ -87,6 +109,8 @@ class MissingPtDefinition(Protocol):
     def pdgids(self) -> tuple[int, ...]: ...
     @property
     def source(self) -> str | None: ...
+    @property
+    def prompt(self) -> bool: ...
 
 
 def object_mask(spec: ObjectDefinition, objs: Any, source: str) -> Any:
@@ -145,7 +169,8 @@ def particle_object(spec: ObjectDefinition, particles: Any,
     if spec.cluster_radius is not None:
         inputs = obj.select(particles, pdgids=spec.pdgids, status=spec.status, mask=mask,
                             sort=False)
-        jets = jetalg.antikt(inputs, spec.cluster_radius)
+        jets = jetalg.antikt(inputs, spec.cluster_radius,
+                             p=CLUSTER_EXPONENT[spec.cluster_algorithm])
         if vary is not None:
             jets = vary(jets)
         out = obj.select(jets, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
@@ -161,11 +186,21 @@ def particle_object(spec: ObjectDefinition, particles: Any,
                          mask=mask)
     if spec.require is not None:
         out = out[object_mask(spec, out, "config")]
+    return _isolate(spec, out, particles)
+
+
+def _isolate(spec: ObjectDefinition, out: Any, particles: Any) -> Any:
+    """Isolation against particles: none within ΔR (``against``) or relative (the scalar pT
+    sum of the stable visible particles in the cone over the object's pT)."""
     if spec.isolation_against:
         others = obj.select(particles, pdgids=spec.isolation_against, status=1,
                             pt_min=spec.isolation_min_pt or None, sort=False)
         assert spec.isolation_dr is not None
         out = out[obj.isolated(out, others, spec.isolation_dr)]
+    if spec.isolation_max_relative is not None:
+        assert spec.isolation_dr is not None
+        rel = pl.isolation(out, particles, radius=spec.isolation_dr)
+        out = out[rel < spec.isolation_max_relative]
     return out
 
 
@@ -175,7 +210,15 @@ def particle_objects(particles: Any, objects: Mapping[str, ObjectDefinition],
                      vary: Callable[[Any], Any] | None = None,
                      varied: Collection[str] = ()) -> dict[str, Any]:
     """Every defined collection (and the missing pT) from the event record's particles;
-    ``vary`` is applied to the candidates of the collections named in ``varied``."""
+    ``vary`` is applied to the candidates of the collections named in ``varied``.
+
+    Showered events (particles with ``prod_vertex``/``end_vertex``, i.e. HepMC) get the
+    particle-level recipes (:func:`showered_objects`); generator-level records (LHE) the
+    parton-level reading, in which the particle-level keys are not applied."""
+    if "prod_vertex" in ak.fields(particles) and "end_vertex" in ak.fields(particles):
+        return showered_objects(particles, objects, overlap, missing, vary=vary, varied=varied)
+    if any(o.isolation_max_relative is not None for o in objects.values()):
+        particles = _with_index(particles)
     objs = {name: particle_object(spec, particles, vary if name in varied else None)
             for name, spec in objects.items()}
     if any(o.isolation_objects for o in objects.values()):
@@ -188,6 +231,166 @@ def particle_objects(particles: Any, objects: Mapping[str, ObjectDefinition],
     if missing is not None:
         invisible = obj.select(particles, pdgids=missing.pdgids, status=1, sort=False)
         out[missing.name] = obj.missing_pt(invisible)
+    return out
+
+
+# --------------------------------------------------------------------------- particle level
+
+#: the generalised-kT exponent p of each clustering algorithm
+CLUSTER_EXPONENT = {"anti-kt": -1.0, "kt": 1.0, "cambridge": 0.0}
+
+
+def _with_index(particles: Any) -> Any:
+    """The particles with their event-local position as field ``index`` (so that objects made
+    from them know their particle: isolation leaves it out, clustering can exclude it)."""
+    if "index" in ak.fields(particles):
+        return particles
+    return ak.with_field(particles, ak.local_index(particles, axis=1), "index")
+
+
+class _Showered:
+    """One chunk of showered events: flat columns and the decay graph, computed once."""
+
+    def __init__(self, particles: Any) -> None:
+        self.particles = _with_index(particles)
+        self.counts = np.asarray(ak.to_numpy(ak.num(particles, axis=1)), dtype=np.int64)
+        self.offsets = np.zeros(len(self.counts) + 1, dtype=np.int64)
+        np.cumsum(self.counts, out=self.offsets[1:])
+        self.ids = np.asarray(ak.to_numpy(ak.flatten(particles["pdgid"], axis=1)),
+                              dtype=np.int64)
+        self.status = np.asarray(ak.to_numpy(ak.flatten(particles["status"], axis=1)),
+                                 dtype=np.int64)
+        self._graph: dg.DecayGraph | None = None
+        self._prompt: np.ndarray | None = None
+
+    @property
+    def graph(self) -> dg.DecayGraph:
+        if self._graph is None:
+            self._graph = dg.decay_graph(self.particles)
+        return self._graph
+
+    @property
+    def prompt(self) -> np.ndarray:
+        """Flat bool: not descended from a hadron (beam particles excepted)."""
+        if self._prompt is None:
+            hadron = pid.is_hadron(self.ids) & (self.status != 4)
+            self._prompt = ~dg.has_ancestor_flat(hadron, self.graph)
+        return self._prompt
+
+    def jagged(self, flat: np.ndarray) -> ak.Array:
+        return ak.unflatten(flat, self.counts)
+
+    def selected(self, spec: ObjectDefinition) -> np.ndarray:
+        """Flat bool: the particles of the definition's ids and status (prompt, from the
+        decay of ...)."""
+        keep = np.isin(np.abs(self.ids), np.asarray(spec.pdgids, dtype=np.int64))
+        keep &= np.isin(self.status, np.asarray(spec.status, dtype=np.int64))
+        if spec.prompt:
+            keep &= self.prompt
+        if spec.from_decay_of:
+            parent = np.isin(np.abs(self.ids), np.asarray(spec.from_decay_of, dtype=np.int64))
+            keep &= dg.has_ancestor_flat(parent, self.graph)
+        return keep
+
+    def members(self, objs: Any) -> np.ndarray:
+        """Flat bool: the particles the objects are made of (``index``, a dressed lepton's
+        ``photons``, a jet's ``constituents``)."""
+        out = np.zeros(int(self.offsets[-1]), dtype=np.bool_)
+        fields = ak.fields(objs)
+        per_object = np.asarray(ak.to_numpy(ak.num(objs, axis=1)), dtype=np.int64)
+        base = np.repeat(self.offsets[:-1], per_object)
+        if "index" in fields:
+            local = np.asarray(ak.to_numpy(ak.flatten(objs["index"], axis=1)), dtype=np.int64)
+            out[local + base] = True
+        for name in ("photons", "constituents"):
+            if name in fields:
+                lists = ak.flatten(objs[name], axis=1)
+                n = np.asarray(ak.to_numpy(ak.num(lists, axis=1)), dtype=np.int64)
+                local = np.asarray(ak.to_numpy(ak.flatten(lists, axis=1)), dtype=np.int64)
+                out[local + np.repeat(base, n)] = True
+        return out
+
+
+def _showered_order(objects: Mapping[str, ObjectDefinition]) -> list[str]:
+    """The collections in an order where every excluded collection comes before the
+    clustering that leaves it out (the config rejects circles)."""
+    done: list[str] = []
+
+    def visit(name: str) -> None:
+        if name in done:
+            return
+        for other in objects[name].cluster_exclude:
+            if other in objects:
+                visit(other)
+        done.append(name)
+
+    for name in objects:
+        visit(name)
+    return done
+
+
+def showered_object(spec: ObjectDefinition, ev: _Showered, built: Mapping[str, Any],
+                    invisible: Sequence[int], vary: Callable[[Any], Any] | None = None) -> Any:
+    """One collection from the stable particles of showered events: dressed leptons, jets
+    (from the selected or all stable particles, less excluded collections and invisibles,
+    with ghost labels) or particles (prompt, ids, status), then thresholds, ``require`` and
+    isolation, as at parton level."""
+    particles = ev.particles
+    if spec.dressing_radius is not None:
+        cands = pl.dressed_leptons(particles, radius=spec.dressing_radius, pdgids=spec.pdgids,
+                                   prompt_only=spec.prompt,
+                                   graph=ev.graph if spec.prompt else None)
+    elif spec.cluster_radius is not None:
+        take = ev.status == 1 if spec.cluster_inputs == "stable" else ev.selected(spec)
+        if spec.cluster_inputs == "stable" and spec.prompt:
+            take &= ev.prompt
+        for name in spec.cluster_exclude:
+            if name == "invisibles":
+                take &= ~np.isin(np.abs(ev.ids), np.asarray(invisible, dtype=np.int64))
+            else:
+                take &= ~ev.members(built[name])
+        ghosts = (pl.ghost_candidates(particles, min_pt=spec.ghost_min_pt, labels=spec.ghosts,
+                                      graph=ev.graph) if spec.ghosts else None)
+        cands = pl.particle_jets(particles, radius=spec.cluster_radius,
+                                 algorithm=spec.cluster_algorithm, exclude=ev.jagged(~take),
+                                 ghosts=ghosts)
+    else:
+        cands = particles[ev.jagged(ev.selected(spec))]
+    if vary is not None:
+        cands = vary(cands)
+    out = obj.select(cands, pt_min=spec.min_pt, abs_eta_max=spec.max_abs_eta,
+                     abs_rapidity_max=spec.max_abs_rapidity)
+    if spec.require is not None:
+        out = out[object_mask(spec, out, "config")]
+    return _isolate(spec, out, particles)
+
+
+def showered_objects(particles: Any, objects: Mapping[str, ObjectDefinition],
+                     overlap: Sequence[OverlapDefinition],
+                     missing: MissingPtDefinition | None, *,
+                     vary: Callable[[Any], Any] | None = None,
+                     varied: Collection[str] = ()) -> dict[str, Any]:
+    """Every defined collection and the missing pT of showered events (HepMC chunks): the
+    particle-level recipes of :mod:`evtkin.select.particle_level`; overlap removal, isolation
+    against objects and pT ordering as for :func:`particle_objects`. The invisibles (left out
+    of clusterings by ``exclude = ["invisibles"]``) are the missing pT's particles, else the
+    neutrinos."""
+    ev = _Showered(particles)
+    invisible = tuple(missing.pdgids) if missing is not None else pl.INVISIBLE_PDGIDS
+    built: dict[str, Any] = {}
+    for name in _showered_order(objects):
+        built[name] = showered_object(objects[name], ev, built, invisible,
+                                      vary if name in varied else None)
+    objs = {name: built[name] for name in objects}
+    if any(o.isolation_objects for o in objects.values()):
+        objs = isolate_against_objects(objects, objs)
+    if overlap:
+        objs = _overlap(objs, overlap)
+    out = {name: ak.to_packed(o) for name, o in objs.items()}
+    if missing is not None:
+        out[missing.name] = pl.missing_pt(ev.particles, pdgids=missing.pdgids,
+                                          prompt_only=missing.prompt,
+                                          graph=ev.graph if missing.prompt else None)
     return out
 
 

@@ -13,6 +13,11 @@ share σ by their event counts). The first weight is the nominal one; every weig
 the nominal one included, is a variation named as in the header.
 
 Events carry no process id in HepMC: the chunks get ``process_id = 0``.
+
+Truth. ``truth_files = [LHE files]`` gives the generator-level events the file was showered
+from: event number N (counted from 1, as ``evtkin toy shower`` writes them) is the N-th event of
+those files, read in order as one sequence (the join of :mod:`evtkin.run.inputs.ntuple`); a
+sample with truth files is read as one unit per file.
 """
 
 from __future__ import annotations
@@ -96,6 +101,8 @@ class _HepMCReading(UnitReading):
         self._strict = strict
         self._reader: Any = None
         self._last: tuple[float, float] | None = None
+        #: the generator-level partner events (``truth_files``), by event number
+        self.join: Any = None
 
     def _read(self) -> Iterator[Any]:
         from evtkin.io.hepmc import read_hepmc
@@ -120,6 +127,14 @@ class _HepMCReading(UnitReading):
     def variation_names(self) -> tuple[str, ...]:
         return self._names
 
+    def truth(self, chunk: Any) -> Any:
+        """The generator-level partners: HepMC event number N (counted from 1, as the toy
+        shower writes them) is the N-th event of the truth files."""
+        if self.join is None:
+            return None
+        numbers = np.asarray(ak.to_numpy(chunk["event_number"]), dtype=np.int64) - 1
+        return self.join.take(numbers)
+
     def file_info(self, n_events: int) -> HepMCRunInfo:
         xs, xe = self._last if self._last is not None else (math.nan, math.nan)
         at = self.unit.byte_range[0] if self.unit.byte_range is not None else self.unit.part
@@ -141,7 +156,7 @@ class HepMCSource(InputSource):
         from evtkin.io.hepmc import hepmc_byte_ranges
         from evtkin.io.hepmc_header import compression
 
-        if parts <= 1 or compression(path) is not None:
+        if parts <= 1 or compression(path) is not None or spec.truth_files:
             return super().work_units(spec, file_index, path, size, 1, max_events)
         ranges = hepmc_byte_ranges(path, parts)
         return [WorkUnit(spec.name, file_index, path, byte_range=(a, b), part=k,
@@ -150,7 +165,16 @@ class HepMCSource(InputSource):
 
     def open(self, plan: Plan, unit: WorkUnit, *, read_threads: int | None = None,
              with_truth: bool = False) -> UnitReading:
-        return _HepMCReading(unit, plan.step_size, read_threads, not plan.lenient)
+        reading = _HepMCReading(unit, plan.step_size, read_threads, not plan.lenient)
+        if with_truth:
+            from evtkin.errors import HepMCError
+            from evtkin.run.inputs.ntuple import TruthJoin
+
+            spec = plan.config.samples[unit.sample]
+            reading.join = TruthJoin([str(p) for p in spec.truth_files], plan.step_size,
+                                     f"{unit.path} (samples.{unit.sample}.truth_files)",
+                                     error=HepMCError)
+        return reading
 
     def provenance(self, info: Any) -> dict[str, Any]:
         return info.provenance() if isinstance(info, HepMCRunInfo) else {}

@@ -174,11 +174,13 @@ class TruthJoin:
     """Generator-level events for ntuple event numbers, streamed from the LHE files in order
     (see the module docstring for the rules)."""
 
-    def __init__(self, paths: Sequence[str], step_size: int, where: str) -> None:
+    def __init__(self, paths: Sequence[str], step_size: int, where: str,
+                 error: type[Exception] = NtupleError) -> None:
         from evtkin.io.lhe import read_lhe
 
         self.paths = [str(p) for p in paths]
         self.where = where
+        self.error = error
         self._readers = (c for p in self.paths for c in read_lhe(p, step_size=step_size))
         self._buffer: list[Any] = []
         self._start = 0  # event number of the first buffered event
@@ -191,16 +193,16 @@ class TruthJoin:
         if numbers.size == 0:
             return None
         if np.any(np.diff(numbers) < 0) or numbers[0] < self._last:
-            raise NtupleError(f"{self.where}: event numbers decrease; the truth join needs them "
+            raise self.error(f"{self.where}: event numbers decrease; the truth join needs them "
                               "in the order of the generator-level files")
         lo, hi = int(numbers[0]), int(numbers[-1])
         if lo < 0:
-            raise NtupleError(f"{self.where}: negative event number {lo}")
+            raise self.error(f"{self.where}: negative event number {lo}")
         self._last = hi
         while self._stop <= hi:
             chunk = next(self._readers, None)
             if chunk is None:
-                raise NtupleError(
+                raise self.error(
                     f"{self.where}: event number {hi} has no generator-level event: the truth "
                     f"files ({', '.join(self.paths)}) hold {self._stop} events")
             self._buffer.append(chunk)
