@@ -230,7 +230,7 @@ _CLOSE_WEIGHTS = np.frombuffer(b"</weights", dtype=np.uint8).copy()
 # Compiled with the kernel (see compiled_kernel); called once per tag, never per number.
 
 
-def _event_boundary(buf, p, n):  # uint8[:], int, int -> bool
+def _event_boundary(buf: np.ndarray, p: int, n: int) -> bool:
     """Whether the ``<`` at ``buf[p]`` opens one of the tags that bound events:
     ``<event>``, ``</event>``, ``<eventgroup>``, ``</eventgroup>`` or
     ``<LesHouchesEvents>``/``</LesHouchesEvents>`` (the name followed by a name end)."""
@@ -260,11 +260,12 @@ def _event_boundary(buf, p, n):  # uint8[:], int, int -> bool
         for t in range(16):
             if buf[U(q + t)] != _LHE_ROOT[U(t)]:
                 return False
-        return _CC[buf[U(q + 16)]] & C_NAME_END != 0
+        ends: bool = _CC[buf[U(q + 16)]] & C_NAME_END != 0
+        return ends
     return False
 
 
-def _line_runs_out(buf, pos, n):  # uint8[:], int, int -> bool
+def _line_runs_out(buf: np.ndarray, pos: int, n: int) -> bool:
     """Whether the event or particle line continuing at ``pos`` reaches the end of the
     buffer before its end (a newline, ``<`` or ``#`` where a token would start): then a
     malformed line may only be cut short."""
@@ -280,7 +281,7 @@ def _line_runs_out(buf, pos, n):  # uint8[:], int, int -> bool
     return True
 
 
-def _tag_scan(buf, pos, n, in_event):  # uint8[:], int, int, bool -> (int, int, int, int)
+def _tag_scan(buf: np.ndarray, pos: int, n: int, in_event: bool) -> tuple[int, int, int, int]:
     """Scan the tag (or comment) starting with the ``<`` at ``buf[pos]``.
 
     Returns ``(ne, gt, wid_s, wid_e)``: the end of the tag name (-1 for a comment
@@ -345,7 +346,8 @@ def _tag_scan(buf, pos, n, in_event):  # uint8[:], int, int, bool -> (int, int, 
     return ne, gt, wid_s, wid_e
 
 
-def _find_weight(buf, wid_s, wid_e, wid_bytes, wid_off, wnext, nw):
+def _find_weight(buf: np.ndarray, wid_s: int, wid_e: int, wid_bytes: np.ndarray,
+                 wid_off: np.ndarray, wnext: int, nw: int) -> int:
     """Column of the declared weight id ``buf[wid_s:wid_e]`` (column ``wnext`` is tried
     first, then all in order), or -1."""
     if wid_s < 0 or wid_e < wid_s:
@@ -368,7 +370,7 @@ def _find_weight(buf, wid_s, wid_e, wid_bytes, wid_off, wnext, nw):
     return -1
 
 
-def _skip_element(buf, pos, n, ns, nlen):
+def _skip_element(buf: np.ndarray, pos: int, n: int, ns: int, nlen: int) -> int:
     """Position after the closing tag ``</name>`` of the element whose name is
     ``buf[ns:ns + nlen]``, searched from ``pos``; -1 if the buffer ends first, -2 if an
     event boundary (:func:`_event_boundary`) comes first: the element does not close
@@ -405,7 +407,7 @@ def _skip_element(buf, pos, n, ns, nlen):
     return -1
 
 
-def _end_tag(buf, pos, n, close):
+def _end_tag(buf: np.ndarray, pos: int, n: int, close: np.ndarray) -> int:
     """After a ``<wgt>`` value or a ``<weights>`` list: the position after its closing tag
     ``close`` (``b"</wgt"`` or ``b"</weights"`` as bytes) that must start at ``buf[pos]``;
     -1 if the buffer ends first, -2 if something else follows the value."""
@@ -427,7 +429,7 @@ def _end_tag(buf, pos, n, close):
     return gt + 1
 
 
-def _number_ok(buf, s, e):  # uint8[:], int, int -> bool
+def _number_ok(buf: np.ndarray, s: int, e: int) -> bool:
     """Whether ``buf[s:e]`` is a number token :func:`parse_slow_token` accepts (one
     linear pass): ``[+-]`` digits with at most one ``.`` (at least one digit), then an
     optional exponent (``e E d D`` or, Fortran style, a bare sign, then digits); or
@@ -476,19 +478,19 @@ def _number_ok(buf, s, e):  # uint8[:], int, int -> bool
 
 
 def scan_kernel_source(  # one state machine on purpose (see module docstring)
-    buf,  # uint8[:]        the text
-    wid_bytes,  # uint8[:]  declared weight ids, concatenated
-    wid_off,  # int64[:]    offsets into wid_bytes, len nw + 1
-    ev_pid,  # int32[:]     process id
-    ev_f,  # float64[4, :]  weight, scale, alpha_qed, alpha_qcd
-    offsets,  # int64[:]    particle offsets, len >= event capacity + 1
-    group,  # int64[:]      first event (column index) of each event's group
-    p_i,  # int32[6, :]
-    p_f,  # float64[7, :]
-    wts,  # float64[:, nw]
-    slow,  # int64[:, 4]    (target, index, token start, token end)
-    st,  # int64[16]        state in/out (see ST_*)
-):
+    buf: np.ndarray,  # uint8[:]        the text
+    wid_bytes: np.ndarray,  # uint8[:]  declared weight ids, concatenated
+    wid_off: np.ndarray,  # int64[:]    offsets into wid_bytes, len nw + 1
+    ev_pid: np.ndarray,  # int32[:]     process id
+    ev_f: np.ndarray,  # float64[4, :]  weight, scale, alpha_qed, alpha_qcd
+    offsets: np.ndarray,  # int64[:]    particle offsets, len >= event capacity + 1
+    group: np.ndarray,  # int64[:]      first event (column index) of each event's group
+    p_i: np.ndarray,  # int32[6, :]
+    p_f: np.ndarray,  # float64[7, :]
+    wts: np.ndarray,  # float64[:, nw]
+    slow: np.ndarray,  # int64[:, 4]    (target, index, token start, token end)
+    st: np.ndarray,  # int64[16]        state in/out (see ST_*)
+) -> int:  # the committed events (as st[ST_EV])
     # Every index is cast to unsigned (U) where it is used: numba then emits no
     # negative-index wrap-around (all indices here are >= 0 by construction).
     n = buf.shape[0]
@@ -504,7 +506,7 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
     P10 = _P10
     nan = np.nan
 
-    ev = st[ST_EV]
+    ev: int = st[ST_EV]
     npart = st[ST_NP]
     nslow = st[ST_NSLOW]
     pos = st[ST_POS]
