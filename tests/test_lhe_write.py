@@ -217,3 +217,35 @@ def test_no_variation_weights(tmp_path):
     back = ak.concatenate(list(evtkin.read_lhe(path)))
     assert ak.to_numpy(back.weights).shape == (len(ev), 0)
     assert ak.to_numpy(back.weight).tolist() == ak.to_numpy(ev.weight).tolist()
+
+
+@pytest.mark.parametrize("name", ["cut.lhe", "cut.lhe.gz"])
+def test_failed_write_leaves_no_file(tmp_path, name):
+    # the events come from a generator that fails after its first chunk has been written
+    target = tmp_path / name
+    seen_while_writing: list[list[str]] = []
+
+    def chunks():
+        yield _events(n=40, seed=5)
+        seen_while_writing.append(sorted(p.name for p in tmp_path.iterdir()))
+        raise RuntimeError("the event source broke")
+
+    with pytest.raises(RuntimeError, match="event source broke"):
+        write_lhe(target, chunks(), info=_info())
+    # the first chunk went to a hidden temporary file beside the target, not to the target
+    assert len(seen_while_writing[0]) == 1
+    assert seen_while_writing[0][0].startswith(f".{name}.")
+    assert list(tmp_path.iterdir()) == []  # neither a half file nor the temporary one
+
+
+def test_failed_write_keeps_an_existing_file(tmp_path):
+    target = tmp_path / "old.lhe"
+    write_lhe(target, _events(n=5, seed=1), info=_info())
+    before = target.read_bytes()
+    bad = _events(n=5, seed=2)
+    bad = ak.with_field(bad, ak.with_field(bad.particles, bad.particles.mother1 + 10, "mother1"),
+                        "particles")  # fmt: skip
+    with pytest.raises(evtkin.LHEError, match="mother index"):
+        write_lhe(target, [_events(n=30, seed=3), bad], info=_info())
+    assert target.read_bytes() == before
+    assert [p.name for p in tmp_path.iterdir()] == ["old.lhe"]

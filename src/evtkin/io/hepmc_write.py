@@ -14,6 +14,9 @@ Particles keep their order (ids 1, 2, ...); vertices are numbered -1, -2, ... in
 they are written, which is their order when read back if the input lists them that way.
 IO_GenEvent writes each vertex followed by its orphan incoming particles (those with no
 production vertex) and its outgoing particles; every particle must touch a vertex.
+
+The file is written beside the target under a temporary name and renamed into place when
+complete (:mod:`evtkin.files`): a failed write leaves neither a part file nor the temporary one.
 """
 
 from __future__ import annotations
@@ -25,6 +28,8 @@ from typing import IO, Any
 
 import awkward as ak
 import numpy as np
+
+from evtkin.files import atomic_path
 
 __all__ = ["write_hepmc"]
 
@@ -66,7 +71,9 @@ def write_hepmc(
     fmt = _fmt(precision)
     names = [str(n) for n in weight_names]
     total = 0
-    with open(path, "wb") as raw:
+    # a temporary file beside the target, renamed into place when complete: a write that
+    # fails (a bad chunk, an exception from the events' generator) leaves no file behind
+    with atomic_path(path) as tmp, open(tmp, "wb") as raw:
         out: IO[bytes] | _gzip.GzipFile
         if use_gzip:
             out = _gzip.GzipFile(filename="", mode="wb", fileobj=raw, mtime=0, compresslevel=6)

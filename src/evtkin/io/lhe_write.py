@@ -29,6 +29,8 @@ operation per block of events (no per-value Python loop); on the 2-core developm
 machine this costs about 2 µs per number, i.e. ~20k top-pair events (12 particles,
 28 variation weights) per ~4 s. Output is deterministic: the same input gives the same
 bytes, and gzip members carry no time stamp or file name.
+The file is written beside the target under a temporary name and renamed into place when
+complete (:mod:`evtkin.files`): a failed write leaves neither a part file nor the temporary one.
 """
 
 from __future__ import annotations
@@ -45,6 +47,7 @@ import awkward as ak
 import numpy as np
 
 from evtkin.errors import LHEError
+from evtkin.files import atomic_path
 
 __all__ = ["ProcessInfo", "RunInfo", "write_lhe"]
 
@@ -122,7 +125,9 @@ def write_lhe(
     head = _header(info, names, header_text, comment)
     chunks: Iterable[ak.Array] = [events] if isinstance(events, ak.Array) else events
     n_written = 0
-    with open(path, "wb") as raw:
+    # a temporary file beside the target, renamed into place when complete: a write that
+    # fails (a bad chunk, an exception from the events' generator) leaves no file behind
+    with atomic_path(path) as tmp, open(tmp, "wb") as raw:
         out: IO[bytes] | _gzip.GzipFile
         if use_gzip:
             out = _gzip.GzipFile(filename="", mode="wb", fileobj=raw, mtime=0,
