@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+import stat
 from pathlib import Path
 
 import pytest
@@ -48,3 +50,15 @@ def test_failed_write_keeps_the_old_file(tmp_path: Path) -> None:
     assert seen[0].suffix == ".png"  # writers such as matplotlib choose the format by suffix
     assert target.read_text() == "old"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out.png"]
+
+
+def test_written_files_get_the_mode_open_gives(tmp_path: Path) -> None:
+    # a file made by the operating system's own open() is the reference (not 0600 of mkstemp)
+    plain = tmp_path / "plain.txt"
+    plain.write_text("x")
+    made = atomic_write_text(tmp_path / "made.txt", "x")
+    assert stat.S_IMODE(made.stat().st_mode) == stat.S_IMODE(plain.stat().st_mode)
+    # replacing a file keeps its mode, as writing it with open() would
+    os.chmod(made, 0o640)
+    atomic_write_text(made, "y")
+    assert stat.S_IMODE(made.stat().st_mode) == 0o640

@@ -9,6 +9,7 @@ from __future__ import annotations
 import os
 import re
 import socket
+import stat
 import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager, suppress
@@ -43,13 +44,37 @@ def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
     fd, name = tempfile.mkstemp(prefix=f".{p.name}.", suffix=f".tmp{p.suffix}", dir=p.parent)
-    os.close(fd)
+    try:
+        # mkstemp makes the file private (0600); give it the mode open() would: an existing
+        # target's mode, else 0666 less the umask
+        os.fchmod(fd, _mode_for(p))
+    finally:
+        os.close(fd)
     tmp = Path(name)
     try:
         yield tmp
         os.replace(tmp, p)
     finally:
         tmp.unlink(missing_ok=True)
+
+
+def _umask() -> int:
+    try:  # Linux: read it without changing it (os.umask can only set it)
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("Umask:"):
+                return int(line.split()[1], 8)
+    except (OSError, ValueError, IndexError):
+        pass
+    mask = os.umask(0o022)  # pragma: no cover - systems without /proc
+    os.umask(mask)  # pragma: no cover
+    return mask  # pragma: no cover
+
+
+def _mode_for(p: Path) -> int:
+    try:
+        return stat.S_IMODE(p.stat().st_mode)
+    except OSError:
+        return 0o666 & ~_umask()
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
