@@ -55,7 +55,8 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from pathlib import Path
+from typing import Any, Protocol
 
 import numpy as np
 
@@ -65,10 +66,73 @@ from evtkin.hists import bands as bandlib
 __all__ = [
     "AUTO_COMBINE",
     "Recipe",
+    "RecipeConfig",
+    "RecipeSample",
+    "RecipeSystematic",
+    "UncertaintyDefinition",
     "bands_for",
     "check_config_against_files",
     "resolve_recipes",
 ]
+
+class UncertaintyDefinition(Protocol):
+    """One ``[uncertainties.NAME]`` recipe as declared (see
+    :class:`evtkin.config.UncertaintySpec`); ``lines`` maps a key (``""`` = the table) to its
+    1-based line in the config."""
+
+    @property
+    def name(self) -> str: ...
+    @property
+    def method(self) -> str: ...
+    @property
+    def group(self) -> str | None: ...
+    @property
+    def ids(self) -> tuple[str, ...]: ...
+    @property
+    def drop_anticorrelated(self) -> bool: ...
+    @property
+    def of(self) -> tuple[str, ...]: ...
+    @property
+    def samples(self) -> tuple[str, ...] | None: ...
+    @property
+    def lines(self) -> Mapping[str, int | None]: ...
+    @property
+    def systematic(self) -> str | None: ...
+
+
+class RecipeSample(Protocol):
+    """What the recipes need of a sample (see :class:`evtkin.config.SampleSpec`)."""
+
+    @property
+    def format(self) -> str: ...
+    @property
+    def files(self) -> Sequence[Path]: ...
+
+
+class RecipeSystematic(Protocol):
+    """An object-level systematic: the names of its varied runs (see
+    :class:`evtkin.config.SystematicSpec`)."""
+
+    @property
+    def variations(self) -> tuple[str, ...]: ...
+
+
+class RecipeConfig(Protocol):
+    """What resolving recipes needs of an analysis (:class:`evtkin.config.AnalysisConfig`
+    satisfies it): the config's file name for messages, its samples, its recipes and
+    systematics, and whether bands come from the files' weight groups by default."""
+
+    @property
+    def source(self) -> str: ...
+    @property
+    def samples(self) -> Mapping[str, RecipeSample]: ...
+    @property
+    def uncertainties(self) -> Sequence[UncertaintyDefinition]: ...
+    @property
+    def uncertainties_automatic(self) -> bool: ...
+    @property
+    def systematics(self) -> Mapping[str, RecipeSystematic]: ...
+
 
 #: ``<weightgroup combine=...>`` values (lower case) → method used by the automatic default
 AUTO_COMBINE: dict[str, str] = {
@@ -121,7 +185,8 @@ class _FileWeights:
     source: str = ""
 
 
-def _file_weights(variations: Sequence[str], infos: Sequence[Any], source: str) -> _FileWeights:
+def _file_weights(variations: Sequence[str], infos: Sequence[object | None],
+                  source: str) -> _FileWeights:
     fw = _FileWeights(tuple(str(v) for v in variations), source=source)
     for info in infos:
         if info is None:
@@ -142,7 +207,7 @@ def _suggest(word: str, choices: Sequence[str]) -> str:
     return f"; did you mean {close[0]!r}?" if close else ""
 
 
-def _where(source: str, spec: Any, key: str) -> str:
+def _where(source: str, spec: UncertaintyDefinition, key: str) -> str:
     line = spec.lines.get(key) if spec.lines else None
     if line is None and spec.lines:
         line = spec.lines.get("")
@@ -162,22 +227,24 @@ def _seven_point(fw: _FileWeights, ids: Sequence[str]) -> list[int] | None:
 
 
 def resolve_recipes(
-    cfg: Any, sample: str, variations: Sequence[str], infos: Sequence[Any],
+    cfg: RecipeConfig, sample: str, variations: Sequence[str], infos: Sequence[object | None],
 ) -> tuple[list[Recipe], list[str]]:
     """The recipes that apply to ``sample`` with the weights its files declare, and notes.
 
     ``variations`` are the sample's variation-weight ids in column order; ``infos`` the files'
-    :class:`~evtkin.io.lhe_header.LHEInfo`. Unknown group names or ids raise
+    header records (:class:`~evtkin.io.lhe_header.LHEInfo`; ``weight_groups``,
+    ``weight_descriptions`` and ``weight_group_combine`` are read where a record has them, a
+    record of another format may have none). Unknown group names or ids raise
     :class:`ConfigError` naming the config key and line, with the closest declared name.
     """
-    source = getattr(cfg, "source", "config")
+    source = cfg.source
     fw = _file_weights(variations, infos, source)
     column = {w: i for i, w in enumerate(fw.names)}
     notes: list[str] = []
     out: list[Recipe] = []
-    spec = getattr(cfg, "samples", {}).get(sample)
-    is_lhe = getattr(spec, "format", "lhe") == "lhe"
-    every = getattr(cfg, "uncertainties", ())
+    spec = cfg.samples.get(sample)
+    is_lhe = spec is None or spec.format == "lhe"
+    every = cfg.uncertainties
     updown = {u.name for u in every if u.method == "updown"}
     specs = [u for u in every
              if (u.samples is None and (is_lhe or u.method == "updown"
@@ -186,6 +253,9 @@ def resolve_recipes(
     for u in specs:
         key = f"uncertainties.{u.name}"
         if u.method == "updown":
+            if u.systematic is None or u.systematic not in cfg.systematics:
+                raise ConfigError(f"{_where(source, u, 'systematic')}: {key}.systematic: "
+                                  f"no [systematics.{u.systematic}] table")
             sys_spec = cfg.systematics[u.systematic]
             out.append(Recipe(u.name, "updown", members=tuple(sys_spec.variations)))
             continue
@@ -235,7 +305,7 @@ def resolve_recipes(
         _check_count(u.method, len(cols), f"{_where(source, u, 'method')}: {key}: sample "
                      f"{sample!r}")
         out.append(Recipe(u.name, u.method, tuple(cols), members, u.drop_anticorrelated))
-    if getattr(cfg, "uncertainties_automatic", True):
+    if cfg.uncertainties_automatic:
         out.extend(_automatic(fw, column, {r.name for r in out}, sample, notes))
     return out, notes
 
@@ -330,15 +400,15 @@ def bands_for(values: np.ndarray, recipes: Sequence[Recipe],
     return out
 
 
-def check_config_against_files(cfg: Any) -> None:
+def check_config_against_files(cfg: RecipeConfig) -> None:
     """Resolve every recipe against the first file of each LHE sample (headers only), so that
     an unknown group or id fails before any event is read."""
     from evtkin.io.lhe_header import lhe_info
 
-    if not getattr(cfg, "uncertainties", ()):
+    if not cfg.uncertainties:
         return
     for name, spec in cfg.samples.items():
-        if getattr(spec, "format", "lhe") != "lhe" or not spec.files:
+        if spec.format != "lhe" or not spec.files:
             continue
         path = spec.files[0]
         if not path.is_file():
