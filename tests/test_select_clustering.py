@@ -349,3 +349,16 @@ def test_flat_entry_point_counts():
     assert list(ncon) == [2, 1]
     assert list(cons) == [0, 1, 2]
     assert jx[0] == pytest.approx(px[0] + px[1], rel=1e-15)
+
+
+def test_flat_entry_point_refuses_counts_that_do_not_match_the_particles():
+    # counts adding up to more particles than given would read past the columns' ends
+    px, py, pz, e = from_ypt([50.0, 30.0, 20.0], [0.0, 0.1, 2.0], [0.0, 0.1, 1.0])
+    with pytest.raises(ValueError, match="add up to 4; px, py, pz, energy hold 3, 3, 3, 3"):
+        C.cluster_flat(px, py, pz, e, np.array([3, 1]))
+    with pytest.raises(ValueError, match="add up to 2"):
+        C.cluster_flat(px, py, pz, e, np.array([2]))
+    with pytest.raises(ValueError, match="counts must be >= 0"):
+        C.cluster_flat(px, py, pz, e, np.array([4, -1]))
+    with pytest.raises(ValueError, match="hold 3, 3, 2, 3"):
+        C.cluster_flat(px, py, pz[:2], e, np.array([3]))

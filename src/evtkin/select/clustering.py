@@ -58,7 +58,7 @@ import numpy as np
 from evtkin._jit import kernel, plain
 from evtkin.select import kinematics as kin
 
-__all__ = ["ALGORITHMS", "cluster_flat", "cluster_jets"]
+__all__ = ["ALGORITHMS", "cluster_flat", "cluster_jets", "momentum_buffers"]
 
 #: algorithm name -> the exponent p of the generalised-kT family
 ALGORITHMS: dict[str, int] = {"anti-kt": -1, "cambridge": 0, "kt": 1}
@@ -218,6 +218,26 @@ def _nn_search(m: int, y: np.ndarray, phi: np.ndarray, tile_of: np.ndarray,
     return bj, best
 
 
+@plain()
+def momentum_buffers(offsets: np.ndarray) -> tuple[
+    np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray,
+    np.ndarray, np.ndarray
+]:
+    """The set-up shared by the clustering kernels (this module's and :mod:`evtkin.select.jets`')
+    for events whose particles are the flat entries ``offsets[k] .. offsets[k + 1]``: flat jet
+    columns ``px, py, pz, E`` with one slot per particle (an event has at most as many jets as
+    particles; the callers read only the slots they fill), ``px, py, pz, E`` work columns of the
+    largest event's size (at least 1) and the number of jets per event (zeros)."""
+    nev = offsets.shape[0] - 1
+    ntot = offsets[nev]
+    maxn = 1
+    for ev in range(nev):
+        maxn = max(maxn, offsets[ev + 1] - offsets[ev])
+    return (np.empty(ntot), np.empty(ntot), np.empty(ntot), np.empty(ntot),
+            np.empty(maxn), np.empty(maxn), np.empty(maxn), np.empty(maxn),
+            np.zeros(nev, dtype=np.int64))
+
+
 @kernel()
 def _cluster_kernel(
     px: np.ndarray,
@@ -231,23 +251,13 @@ def _cluster_kernel(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Cluster every event. Returns flat jet columns ``(px, py, pz, E)``, jets per event, the
     flat constituent indices (per event) and constituents per jet."""
-    ntot = px.shape[0]
     nev = offsets.shape[0] - 1
-    out_px = np.empty(ntot)
-    out_py = np.empty(ntot)
-    out_pz = np.empty(ntot)
-    out_e = np.empty(ntot)
+    out_px, out_py, out_pz, out_e, jx, jy, jz, je, njets = momentum_buffers(offsets)
+    ntot = out_px.shape[0]
+    maxn = jx.shape[0]
     out_cons = np.empty(ntot, dtype=np.int64)
     out_ncon = np.empty(ntot, dtype=np.int64)
-    njets = np.zeros(nev, dtype=np.int64)
     r2 = radius * radius
-    maxn = 1
-    for ev in range(nev):
-        maxn = max(maxn, offsets[ev + 1] - offsets[ev])
-    jx = np.empty(maxn)
-    jy = np.empty(maxn)
-    jz = np.empty(maxn)
-    je = np.empty(maxn)
     kt = np.empty(maxn)
     y = np.empty(maxn)
     phi = np.empty(maxn)
@@ -603,6 +613,13 @@ def cluster_flat(
     counts = np.asarray(counts, dtype=np.int64)
     offsets = np.zeros(len(counts) + 1, dtype=np.int64)
     np.cumsum(counts, out=offsets[1:])
+    sizes = {len(c) for c in cols}
+    if len(sizes) != 1 or (counts < 0).any() or int(offsets[-1]) != len(cols[0]):
+        held = ", ".join(str(len(c)) for c in cols)
+        raise ValueError(
+            f"cluster_flat: counts must be >= 0 and add up to the particles given (counts add "
+            f"up to {int(offsets[-1])}; px, py, pz, energy hold {held})"
+        )
     fx, fy, fz, fe = cols
     out = _cluster_kernel(fx, fy, fz, fe, offsets, float(radius), int(p), float(min_pt))
     return out  # type: ignore[no-any-return]

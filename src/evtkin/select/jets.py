@@ -23,6 +23,7 @@ import numpy as np
 
 from evtkin._jit import kernel, plain
 from evtkin.select import kinematics as kin
+from evtkin.select.clustering import momentum_buffers
 
 __all__ = ["antikt", "cluster"]
 
@@ -68,25 +69,15 @@ def _cluster_kernel(
     np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray
 ]:
     """Cluster every event; jets of event k go to slots offsets[k] .. offsets[k] + njets[k]."""
-    ntot = px.shape[0]
     nev = offsets.shape[0] - 1
-    out_px = np.zeros(ntot)
-    out_py = np.zeros(ntot)
-    out_pz = np.zeros(ntot)
-    out_e = np.zeros(ntot)
+    # jet columns and work buffers (reused by every event: no allocation inside the event loop)
+    out_px, out_py, out_pz, out_e, jx, jy, jz, je, njets = momentum_buffers(offsets)
+    ntot = out_px.shape[0]
+    maxn = jx.shape[0]
     out_ncon = np.zeros(ntot, dtype=np.int64)
     out_flag = np.zeros(ntot, dtype=np.int64)
-    njets = np.zeros(nev, dtype=np.int64)
     jet_of = np.full(ntot, -1, dtype=np.int64)
     r2 = radius * radius
-    maxn = 0
-    for ev in range(nev):
-        maxn = max(maxn, offsets[ev + 1] - offsets[ev])
-    # work buffers, reused by every event (no allocation inside the event loop)
-    jx = np.empty(maxn)
-    jy = np.empty(maxn)
-    jz = np.empty(maxn)
-    je = np.empty(maxn)
     jf = np.empty(maxn, dtype=np.int64)
     jn = np.empty(maxn, dtype=np.int64)
     kt = np.empty(maxn)
