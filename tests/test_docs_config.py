@@ -212,7 +212,7 @@ def test_error_example_gives_the_documented_message(tmp_path: Path, block: str,
 KEYS: dict[str, tuple[str, ...]] = {
     "analysis": ("name", "description", "note", "luminosity_fb", "step_size", "weight"),
     "samples": ("files", "label", "format", "cross_section_pb", "luminosity_fb", "toy", "input",
-                "weights_give", "truth_files", "weight"),
+                "weights_give", "truth_files", "weight", "data"),
     "objects": ("particles", "status", "min_pt", "max_abs_eta", "max_abs_rapidity",
                 "from_decay_of", "isolation", "clustering", "require", "from", "prompt",
                 "dressing"),

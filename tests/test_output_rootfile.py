@@ -78,3 +78,30 @@ def test_results_root_keys(tmp_path: Path) -> None:
     assert keys == {"tt_toy__top_pt", "tt_toy__top_pt__pdf_up", "tt_toy__top_pt__pdf_down",
                     "tt_toy__top_pt__entries"}  # the raw fills per bin
     assert not list(tmp_path.glob(".*.tmp"))
+
+
+def test_2d_cross_section_label_is_stored_with_its_ds(tmp_path: Path) -> None:
+    # d²σ/(dx dy): a cross section per bin area names both differentials (common practice);
+    # the label is made where the histogram is normalised, so results.json, the CSV table and
+    # the ROOT z axis (and a plot re-drawn from them) carry the same text
+    import json
+
+    from evtkin.output.tables import read_results, write_results
+
+    acc = HistAccumulator(HistSpec("m_cos", (
+        AxisSpec.regular(4, 60.0, 120.0, name="m", label="m_{ℓℓ}", unit="GeV"),
+        AxisSpec.regular(2, -1.0, 1.0, name="cos", label="cos θ*")), "test"), ())
+    acc.fill(RNG.uniform(60, 120, 500), RNG.uniform(-1, 1, 500), weight=np.ones(500))
+    nh = normalise(acc, "xsec_per_bin")
+    label = "d²σ/(d\u2009m_{ℓℓ} d\u2009cos θ*)"
+    assert (nh.y_label, nh.y_unit) == (label, "pb/GeV")
+    res = Results(samples={"s": SampleResult("s", histograms={"m_cos": hist_result(nh)})})
+    write_results(tmp_path, res)
+    write_results_root(tmp_path, res)
+    stored = json.loads((tmp_path / "results.json").read_text(encoding="utf-8"))
+    assert stored["samples"]["s"]["histograms"]["m_cos"]["y_label"] == label
+    assert read_results(tmp_path).samples["s"].histograms["m_cos"].y_title == f"{label} [pb/GeV]"
+    csv_text = (tmp_path / "csv" / "s" / "m_cos.csv").read_text(encoding="utf-8")
+    assert f"y: {label} [pb/GeV]" in csv_text
+    th2 = uproot.open(tmp_path / "histograms.root")[root_key("s", "m_cos")]
+    assert th2.member("fZaxis").member("fTitle") == f"{label} [pb/GeV]"

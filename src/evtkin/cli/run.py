@@ -120,7 +120,8 @@ def main(args: argparse.Namespace) -> int:
         print(f"warning: {w}", file=sys.stderr)
     for name, s in result.samples.items():
         sigma = f"{s.xsec.sigma_pb:.6g} pb" if s.xsec is not None else "n/a"
-        print(f"{name}: {s.n_events} events, σ = {sigma}, "
+        what = "data: counted with weight 1" if s.data else f"σ = {sigma}"
+        print(f"{name}: {s.n_events} events, {what}, "
               f"{s.cutflow[-1]['n_raw'] if s.cutflow else 0} selected")
         if s.xsec is not None:
             for w in s.xsec.warnings:

@@ -4,6 +4,7 @@ quantities (no circles), and objects/missing pT/response histograms against the 
 from __future__ import annotations
 
 from collections.abc import Mapping
+from typing import Any
 
 from evtkin.config.keylines import Path_
 from evtkin.config.schema import EVENT_FIELDS, AnalysisConfig
@@ -104,8 +105,20 @@ def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
             raise ctx.error(("quantities", name), f"{name!r} is already defined elsewhere")
         _check_expression_names(ctx, ("quantities", name), q, known)
     for name, h in cfg.histograms.items():
+        if h.normalise == "xsec_per_bin":
+            for sname in h.samples or tuple(cfg.samples):
+                spec = cfg.samples[sname]
+                if spec.data and spec.luminosity_fb is None:
+                    raise ctx.error(
+                        ("histograms", name, "normalise"),
+                        f"'xsec_per_bin' of the data sample {sname!r} is its counts / (L · bin "
+                        f"width): set luminosity_fb in [analysis] or in [samples.{sname}] (or "
+                        f"normalise = \"events\" for plain counts)",
+                    )
         if h.normalise == "events":
             for sname in h.samples or tuple(cfg.samples):
+                if cfg.samples[sname].data:
+                    continue  # counts as they are
                 if cfg.samples[sname].luminosity_fb is None:
                     raise ctx.error(
                         ("histograms", name, "normalise"),
@@ -132,6 +145,18 @@ def _check_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:
 
     for qname in cfg.quantities:
         visit(qname, [])
+
+
+def _check_data_roles(ctx: _Ctx, cfg: AnalysisConfig) -> None:
+    """A data sample (``data = true``) is drawn as points: never stacked or overlaid."""
+    tables: list[tuple[Path_, Any]] = [(("plot",), cfg.plot.options)]
+    tables += [(("histograms", h, "plot"), spec.plot) for h, spec in cfg.histograms.items()]
+    for path, options in tables:
+        for role in ("stack", "overlay"):
+            for i, n in enumerate(options.get(role) or ()):
+                if n in cfg.samples and cfg.samples[n].data:
+                    raise ctx.error((*path, role, i), f"{n!r} is a data sample (data = true): "
+                                    f"it is drawn as points, never in {role!r}")
 
 
 def _check_ntuple_names(ctx: _Ctx, cfg: AnalysisConfig) -> None:

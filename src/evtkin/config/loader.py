@@ -9,7 +9,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from evtkin.config.checks import _check_names, _check_ntuple_names
+from evtkin.config.checks import _check_data_roles, _check_names, _check_ntuple_names
 from evtkin.config.keylines import KeyLines
 from evtkin.config.read_composites import _read_composites
 from evtkin.config.read_histograms import _read_histograms
@@ -146,4 +146,5 @@ def load_config(source: str | Path | Mapping[str, Any], *, base_dir: Path | None
     )
     _check_names(ctx, cfg)
     _check_ntuple_names(ctx, cfg)
+    _check_data_roles(ctx, cfg)
     return cfg

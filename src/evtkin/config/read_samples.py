@@ -80,6 +80,13 @@ def _read_samples(top: _Table, base: Path, lumi: float | None,
         ntuple = _read_ntuple_sample(s, fmt, base)
         weight = s.expression("weight") if s.has("weight") else None
         s.known.append("weight")
+        data = s.boolean("data", False)
+        if data:
+            for key, what in (("cross_section_pb", "cross section"),
+                              ("weight", "event weight")):
+                if s.has(key):
+                    raise s.ctx.error((*s.path, key), f"a data sample (data = true) counts "
+                                      f"events with weight 1 and has no {what}; remove {key}")
         out[name] = SampleSpec(
             name=name,
             files=paths,
@@ -89,6 +96,7 @@ def _read_samples(top: _Table, base: Path, lumi: float | None,
             toy=s.boolean("toy", False),
             format=fmt,
             weight=weight,
+            data=data,
             **ntuple,
         )
         s.done()

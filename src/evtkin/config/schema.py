@@ -76,6 +76,10 @@ class SampleSpec:
     #: an event-weight expression of this sample, multiplying the generator weight (and the
     #: analysis' ``weight``)
     weight: Expression | None = None
+    #: ``data = true``: recorded (or pseudo-) data: every event counts with weight 1 (Σw² = N),
+    #: no cross section, no variation weights, object-level variations or bands; histograms
+    #: hold event counts (``xsec_per_bin``: counts / (L · bin width)); drawn as points
+    data: bool = False
 
 
 @dataclass(frozen=True)

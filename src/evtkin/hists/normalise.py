@@ -24,7 +24,8 @@ import numpy as np
 from evtkin.hists.fill import HistAccumulator, HistSpec
 from evtkin.hists.record import HistRecord
 
-__all__ = ["MODES", "NormalisedHist", "bin_volumes", "normalise", "shape_fractions", "unit_area"]
+__all__ = ["MODES", "NormalisedHist", "bin_volumes", "normalise", "normalise_counts",
+           "shape_fractions", "unit_area"]
 
 Mode = Literal["raw", "xsec_per_bin", "events", "unit_area"]
 MODES: tuple[str, ...] = ("raw", "xsec_per_bin", "events", "unit_area")
@@ -95,6 +96,14 @@ def _unit(spec: HistSpec) -> str:
 _record = HistRecord.from_rows
 
 
+def _second_derivative_label(spec: HistSpec) -> str:
+    """``d²σ/(d m d cos θ)`` for a 2-D cross section per bin area (thin spaces after each
+    ``d``, so that a drawn label keeps the d upright before a scripted name such as
+    ``m_{ℓℓ}``); the unit (``pb/GeV``) is the record's ``y_unit``."""
+    xs = [a.label or a.name for a in spec.axes]
+    return f"d²σ/(d\u2009{xs[0]} d\u2009{xs[1]})"
+
+
 def normalise(
     acc: HistAccumulator,
     mode: Mode | str = "raw",
@@ -126,8 +135,7 @@ def _normalise(acc: HistAccumulator, mode: Mode | str, *, luminosity_fb: float |
         vol = bin_volumes(spec)
         inside = np.isfinite(vol)
         div = np.where(inside, vol, 1.0)
-        label = f"dσ/d{xlabel}" if spec.ndim == 1 else "d²σ/(" + ")(".join(
-            a.label or a.name for a in spec.axes) + ")"
+        label = f"dσ/d{xlabel}" if spec.ndim == 1 else _second_derivative_label(spec)
         return _record(spec, acc.variations, w / div, w2 / (div * div), "xsec_per_bin",
                        _unit(spec), label, acc.entries, include_flow)
     if mode == "events":
@@ -148,6 +156,42 @@ def _normalise(acc: HistAccumulator, mode: Mode | str, *, luminosity_fb: float |
         return _record(spec, acc.variations, vals, vars_, "unit_area", "",
                        "fraction per bin", acc.entries, include_flow)
     raise ValueError(f"unknown normalisation {mode!r}; expected one of {', '.join(MODES)}")
+
+
+def normalise_counts(
+    acc: HistAccumulator,
+    mode: Mode | str = "events",
+    *,
+    luminosity_fb: float | None = None,
+    include_flow: bool = True,
+) -> HistRecord:
+    """A histogram of counted events (a data sample: every weight 1, so Σw = N and Σw² = N
+    per bin) in the histogram's normalisation, without a cross section:
+
+    * ``raw`` and ``events``: the counts N ± √N as they are (``events``: no luminosity factor,
+      the counts are already events at the data's luminosity);
+    * ``xsec_per_bin``: the measured differential cross section N / (L · Δx) ± √N / (L · Δx)
+      (L in pb⁻¹; needs ``luminosity_fb``);
+    * ``unit_area``: the fractions N_k / N with the binomial variance (as :func:`normalise`).
+    """
+    if mode in ("raw", "events"):
+        rec = _normalise(acc, "raw", luminosity_fb=None, include_flow=include_flow,
+                         weights_in_pb=False)
+        rec.normalisation, rec.y_unit, rec.y_label = str(mode), "events", "events per bin"
+    elif mode == "xsec_per_bin":
+        if luminosity_fb is None or not np.isfinite(luminosity_fb) or luminosity_fb <= 0:
+            raise ValueError(
+                f"histogram {acc.spec.name!r}: 'xsec_per_bin' of counted events is N / (L · bin "
+                f"width) and needs a luminosity in fb⁻¹ (> 0), got {luminosity_fb!r}")
+        scaled = acc.scaled(1.0 / (float(luminosity_fb) * PB_PER_FB))
+        rec = _normalise(scaled, "xsec_per_bin", luminosity_fb=None, include_flow=include_flow,
+                         weights_in_pb=True)
+    else:
+        rec = _normalise(acc, mode, luminosity_fb=None, include_flow=include_flow,
+                         weights_in_pb=False)
+    counts = getattr(acc, "counts", None)
+    rec.counts = None if counts is None else np.array(counts, dtype=np.int64)
+    return rec
 
 
 def shape_fractions(nh: HistRecord) -> np.ndarray | None:

@@ -572,10 +572,12 @@ def plot_hist1d(
 
 
 def _colourbar_label(h: HistResult) -> str:
-    """``d²σ/(dx dy) [unit]`` for cross sections per bin area, else the stored label."""
-    if h.normalisation == "xsec_per_bin":
+    """The stored label with its unit (``d²σ/(d m d cos θ) [pb/GeV]`` for cross sections per
+    bin area); results written before the label was stored in that form
+    (``d²σ/(m)(cos θ)``) get it here."""
+    if h.normalisation == "xsec_per_bin" and not h.y_label.startswith("d²σ/(d"):
         xs = [a.label or a.name for a in h.axes]
-        text = f"d²σ / (d\u2009{xs[0]} d\u2009{xs[1]})"  # thin spaces: d stays upright
+        text = f"d²σ/(d\u2009{xs[0]} d\u2009{xs[1]})"  # thin spaces: d stays upright
         return f"{text} [{h.y_unit}]" if h.y_unit else text
     return h.y_title
 
@@ -706,6 +708,14 @@ def _curves(hname: str, present: list[Any], measured: Mapping[str, Any], opts: P
         if n not in results.samples:
             raise ResultsError(f"plot overlay: no sample {n!r}; the results hold "
                                f"{', '.join(results.samples) or 'none'}")
+    # data samples (counted events) are always points: after the listed ones, never stacked
+    counted = [n for n, s in results.samples.items() if s.data]
+    for role in ("stack", "overlay"):
+        for n in getattr(opts, role) or ():
+            if n in counted:
+                raise ResultsError(f"plot {role}: {n!r} is a data sample (counted events); it "
+                                   "is drawn as points, never stacked or overlaid")
+    as_points = (*opts.data, *(n for n in counted if n not in opts.data))
 
     def hist_of(s: Any) -> HistResult:
         h = s.histograms[hname]
@@ -720,7 +730,7 @@ def _curves(hname: str, present: list[Any], measured: Mapping[str, Any], opts: P
                                          opts.colour(n) or colour_for(k), n))
             k += 1
     overlay = opts.overlay if opts.overlay is not None else tuple(
-        s.name for s in present if s.name not in opts.stack and s.name not in opts.data)
+        s.name for s in present if s.name not in opts.stack and s.name not in as_points)
     for n in overlay:
         if n in by_name:
             s = by_name[n]
@@ -730,7 +740,7 @@ def _curves(hname: str, present: list[Any], measured: Mapping[str, Any], opts: P
     edges = (out[0].edges if out else
              np.asarray(hist_of(present[0]).axes[0].edges, dtype=float))
     first = hist_of(present[0])
-    for n in opts.data:
+    for n in as_points:
         if n in by_name:
             s = by_name[n]
             out.append(curve_from_result(hist_of(s), s.label or n, "points", opts.colour(n), n))

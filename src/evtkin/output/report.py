@@ -24,6 +24,7 @@ import numpy as np
 
 from evtkin._version import __version__
 from evtkin.files import atomic_write_text
+from evtkin.output.tables import _cutflow_table
 
 __all__ = ["render_compare_report", "render_run_report", "write_compare_report", "write_run_report"]
 
@@ -273,6 +274,8 @@ def render_run_report(
         x = s.xsec or {}
         sig = x.get("sigma_pb")
         sig_txt = "–" if sig is None else f"{_num(sig)} ± {_num(x.get('sigma_err_pb'), '.2g')}"
+        if getattr(s, "data", False):
+            sig_txt = "data (counted events)"
         rows.append(
             [
                 _e(name),
@@ -311,23 +314,10 @@ def render_run_report(
                   for r, rows in getattr(s, "region_cutflows", {}).items()]
         for heading, rows in flows:
             body.append(f"<h3>{_e(heading)}</h3>")
-            body.append(
-                _table(
-                    ["step", "events (raw)", "Σw", "√Σw²", "eff. step", "eff. cumulative"],
-                    [
-                        [
-                            _e(c.get("step", "")),
-                            _num(c.get("n_raw")),
-                            _num(c.get("sum_w")),
-                            _num(None if c.get("sum_w2") is None
-                                 else float(c["sum_w2"]) ** 0.5),
-                            _num(c.get("eff_step")),
-                            _num(c.get("eff_cum")),
-                        ]
-                        for c in rows
-                    ],
-                )
-            )
+            # the columns of the cutflow files: Σw ± √Σw² in pb and, with a luminosity, the
+            # expected events; a data sample's counted events N ± √N
+            head, cells = _cutflow_table(rows, s.luminosity_fb, getattr(s, "data", False))
+            body.append(_table(head, [[_e(x) for x in r] for r in cells]))
 
     body.append('<h2 id="histograms">Histograms</h2>')
     names: list[str] = []

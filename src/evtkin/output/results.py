@@ -65,14 +65,17 @@ class SampleHists(Mapping[str, Any]):
     ``luminosity_fb``, ``xsec`` (σ, its error, Σw, N_eff, ... as in results.json),
     ``variations`` (variation-weight names), ``cutflow`` (rows as in results.json),
     ``bands`` (histogram name → band name → :class:`HistBand`) and ``shape_bands`` (the same
-    for unit-area shapes, each variation normalised on its own; 1-D only)."""
+    for unit-area shapes, each variation normalised on its own; 1-D only) and ``data`` (a data
+    sample: counted events with weight 1, no cross section)."""
 
     def __init__(self, name: str, hists: Mapping[str, Any], *, label: str = "",
                  luminosity_fb: float | None = None, xsec: Mapping[str, Any] | None = None,
                  variations: Sequence[str] = (), cutflow: Sequence[Mapping[str, Any]] = (),
                  bands: Mapping[str, Mapping[str, HistBand]] | None = None,
-                 shape_bands: Mapping[str, Mapping[str, HistBand]] | None = None) -> None:
+                 shape_bands: Mapping[str, Mapping[str, HistBand]] | None = None,
+                 data: bool = False) -> None:
         self.name = name
+        self.data = bool(data)
         self.label = label or name
         self.luminosity_fb = luminosity_fb
         self.xsec: dict[str, Any] = dict(xsec or {})
@@ -99,9 +102,9 @@ class SampleHists(Mapping[str, Any]):
         if not isinstance(other, SampleHists):
             return NotImplemented
         mine = (self.name, self.label, self.luminosity_fb, self.xsec, self.variations,
-                self.cutflow, self.bands, self.shape_bands)
+                self.cutflow, self.bands, self.shape_bands, self.data)
         theirs = (other.name, other.label, other.luminosity_fb, other.xsec, other.variations,
-                  other.cutflow, other.bands, other.shape_bands)
+                  other.cutflow, other.bands, other.shape_bands, other.data)
         if mine != theirs or list(self._hists) != list(other._hists):
             return False
         return all(bool(h == other._hists[k]) and h.metadata == other._hists[k].metadata
@@ -240,7 +243,7 @@ def from_record(record: tables.Results, *, config_text: str | None = None,
             sname, hists, label=s.label or sname, luminosity_fb=s.luminosity_fb,
             xsec=_plain(s.xsec), variations=[str(v) for v in s.variations],
             cutflow=_plain(tables._cutflow_rows(s.cutflow)) if s.cutflow else [],
-            bands=bands, shape_bands=shape_bands)
+            bands=bands, shape_bands=shape_bands, data=s.data)
     return samples
 
 

@@ -68,6 +68,8 @@ class SampleResult:
     cutflow: list[dict[str, Any]] = field(default_factory=list)
     #: per region: its cutflow (the common steps up to where it branches off, then its own)
     region_cutflows: dict[str, list[dict[str, Any]]] = field(default_factory=dict)
+    #: a data sample: counted events (weight 1), no cross section; drawn as points
+    data: bool = False
 
 
 @dataclass
@@ -241,9 +243,13 @@ def _expected(rows: Sequence[Mapping[str, Any]], luminosity_fb: float | None
     return [(lum * r["sum_w"], lum * math.sqrt(max(r["sum_w2"], 0.0))) for r in rows]
 
 
-def _cutflow_table(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None
-                   ) -> tuple[list[str], list[list[str]]]:
+def _cutflow_table(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None,
+                   data: bool = False) -> tuple[list[str], list[list[str]]]:
     rows = _cutflow_rows(steps)
+    if data:  # counted events: N ± √N, no cross section
+        head = ["step", "events", "± √N", "eff. step", "eff. cumul."]
+        return head, [[r["step"], str(r["n_raw"]), f"{math.sqrt(r['sum_w2']):.3g}",
+                       f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"] for r in rows]
     exp = _expected(rows, luminosity_fb)
     head = ["step", "events", "Σw [pb]", "± √Σw² [pb]"]
     if exp is not None:
@@ -260,10 +266,11 @@ def _cutflow_table(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | No
 
 
 def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "",
-                 luminosity_fb: float | None = None) -> str:
+                 luminosity_fb: float | None = None, data: bool = False) -> str:
     """Aligned text table: step, raw count, Σw ± √Σw² (pb), with a luminosity the expected
-    events N = L·Σw ± L·√Σw², step and cumulative efficiency."""
-    head, body = _cutflow_table(steps, luminosity_fb)
+    events N = L·Σw ± L·√Σw², step and cumulative efficiency (``data``: counted events,
+    N ± √N)."""
+    head, body = _cutflow_table(steps, luminosity_fb, data)
     widths = [max(len(x) for x in col) for col in zip(head, *body, strict=False)]
     lines = [title] if title else []
     for r in [head, *body]:
@@ -275,9 +282,9 @@ def cutflow_text(steps: Sequence[Mapping[str, Any]], title: str = "",
 
 
 def cutflow_markdown(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None = None,
-                     title: str = "") -> str:
+                     title: str = "", data: bool = False) -> str:
     """The cutflow as a Markdown table (the same columns as :func:`cutflow_text`)."""
-    head, body = _cutflow_table(steps, luminosity_fb)
+    head, body = _cutflow_table(steps, luminosity_fb, data)
 
     def cell(x: str) -> str:
         return x.replace("|", "\\|")
@@ -308,9 +315,17 @@ def _tex_number(text: str) -> str:
 
 
 def cutflow_latex(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None = None,
-                  title: str = "") -> str:
-    """The cutflow as a LaTeX ``tabular`` (values ± errors in math mode), ready to \\input."""
+                  title: str = "", data: bool = False) -> str:
+    """The cutflow as a LaTeX ``tabular`` (values ± errors in math mode), ready to \\input
+    (``data``: counted events, N ± √N)."""
     rows = _cutflow_rows(steps)
+    if data:
+        out = [f"% {_tex(title)}" if title else "% evtkin cutflow", r"\begin{tabular}{lrrr}",
+               r"\hline", r"Step & Events & Eff. step & Eff. cumul. \\", r"\hline"]
+        out += [f"{_tex(r['step'])} & ${r['n_raw']} \\pm {math.sqrt(r['sum_w2']):.3g}$ & "
+                f"{r['eff_step']:.4f} & {r['eff_cum']:.4f} \\\\" for r in rows]
+        out += [r"\hline", r"\end{tabular}"]
+        return "\n".join(out) + "\n"
     exp = _expected(rows, luminosity_fb)
     cols = "lr" + "r" + ("r" if exp is not None else "") + "rr"
     head = ["Step", "Events", r"$\sum w$ [pb]"]
@@ -337,13 +352,15 @@ def write_cutflow(
     folder: str | os.PathLike[str], sample: str, steps: Sequence[Mapping[str, Any]],
     title: str | None = None,
     luminosity_fb: float | None = None,
+    data: bool = False,
 ) -> tuple[Path, Path]:
     """``cutflow/<sample>.txt``, ``.csv``, ``.md`` and ``.tex`` (a region's:
     ``<sample>@<region>``; with a luminosity: the expected events too, and the CSV gains the
-    columns ``expected``, ``expected_err``)."""
+    columns ``expected``, ``expected_err``; ``data``: counted events, N ± √N, no expected
+    events)."""
     d = Path(folder) / "cutflow"
     rows = _cutflow_rows(steps)
-    exp = _expected(rows, luminosity_fb)
+    exp = None if data else _expected(rows, luminosity_fb)
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["step", "n_raw", "sum_w", "sum_w2", "eff_step", "eff_cum"]
@@ -354,10 +371,10 @@ def write_cutflow(
                    + ([_fmt(exp[k][0]), _fmt(exp[k][1])] if exp is not None else []))
     title = title or f"sample {sample}"
     stem = safe_name(sample)
-    t = atomic_write_text(d / f"{stem}.txt", cutflow_text(steps, title, luminosity_fb))
+    t = atomic_write_text(d / f"{stem}.txt", cutflow_text(steps, title, luminosity_fb, data))
     c = atomic_write_text(d / f"{stem}.csv", buf.getvalue())
-    atomic_write_text(d / f"{stem}.md", cutflow_markdown(steps, luminosity_fb, title))
-    atomic_write_text(d / f"{stem}.tex", cutflow_latex(steps, luminosity_fb, title))
+    atomic_write_text(d / f"{stem}.md", cutflow_markdown(steps, luminosity_fb, title, data))
+    atomic_write_text(d / f"{stem}.tex", cutflow_latex(steps, luminosity_fb, title, data))
     return t, c
 
 
@@ -388,6 +405,8 @@ def results_to_dict(results: Results) -> dict[str, Any]:
         if s.region_cutflows:
             out["samples"][name]["region_cutflows"] = {
                 r: _cutflow_rows(rows) for r, rows in s.region_cutflows.items()}
+        if s.data:
+            out["samples"][name]["data"] = True
     return out
 
 
@@ -403,11 +422,11 @@ def write_results(
                 target = root / "csv" / safe_name(sname) / f"{safe_name(hname)}.csv"
                 write_hist_csv(target, h, sname)
         if s.cutflow:
-            write_cutflow(root, sname, s.cutflow, luminosity_fb=s.luminosity_fb)
+            write_cutflow(root, sname, s.cutflow, luminosity_fb=s.luminosity_fb, data=s.data)
         for region, rows in s.region_cutflows.items():
             write_cutflow(root, f"{sname}@{region}", rows,
                           title=f"sample {sname}, region {region}",
-                          luminosity_fb=s.luminosity_fb)
+                          luminosity_fb=s.luminosity_fb, data=s.data)
     return write_json(root / RESULTS_JSON, results_to_dict(results))
 
 
@@ -492,6 +511,7 @@ def read_results(folder: str | os.PathLike[str], *, allow_incomplete: bool = Fal
             histograms=hists, cutflow=list(s.get("cutflow") or []),
             region_cutflows={str(r): list(rows)
                              for r, rows in (s.get("region_cutflows") or {}).items()},
+            data=bool(s.get("data", False)),
         )
     return out
 

@@ -8,6 +8,9 @@ written: σ comes from the generator), cutflow rows and histograms per process, 
 selection and histograms for every object-level variation (nominal weight only, under the
 histogram name ``NAME~VARIATION``), and writes the selected events of every event table to a
 part file (:mod:`evtkin.run.skims`).
+
+A data sample (``[samples.NAME] data = true``) is counted: every event has weight 1 whatever
+the file says, without variation weights, event-weight expressions or object-level variations.
 """
 
 from __future__ import annotations
@@ -41,10 +44,13 @@ def fill_chunk(plan: Plan, result: PartialResult, sample: str, file_index: int, 
     import time
 
     t0 = time.perf_counter()
+    data = plan.config.samples[sample].data
+    if data:  # counted events: weight 1, Σw² = N (no statistical groups either)
+        w0, wv, variations, group = np.ones(len(w0)), np.zeros((len(w0), 0)), (), None
     view, masks = analyse_chunk(plan, chunk, view)
     names = plan.histograms_for(sample)
     entries = {name: hist_entries(view, name, masks[plan.row_of(name)]) for name in names}
-    f = event_weight(plan, view, sample)
+    f = None if data else event_weight(plan, view, sample)
     wf, wvf = (w0, wv) if f is None else (w0 * f, wv * f[:, None])
     t1 = time.perf_counter()
     fill_by_process(plan, result, sample, file_index, chunk, masks, entries, wf, wvf,
@@ -53,7 +59,7 @@ def fill_chunk(plan: Plan, result: PartialResult, sample: str, file_index: int, 
     if seconds is not None:
         seconds["select"] = seconds.get("select", 0.0) + t1 - t0
         seconds["fill"] = seconds.get("fill", 0.0) + t2 - t1
-    for vname, sys, sign in plan.variations:
+    for vname, sys, sign in () if data else plan.variations:
         vview = ChunkView(plan, chunk, variation=(vname, sys, sign))
         vview, vmasks = analyse_chunk(plan, chunk, vview)
         ventries = {varied_name(name, vname): hist_entries(vview, name, vmasks[plan.row_of(name)])

@@ -81,6 +81,10 @@ def summary_text(result: RunResult) -> str:
     lines = []
     for name, s in result.samples.items():
         x = s.xsec
+        if s.data:
+            sel = s.cutflow[-1]["n_raw"] if s.cutflow else s.n_events
+            lines.append(f"{name}: data, {s.n_events} events counted (weight 1), {sel} selected")
+            continue
         if x is None:
             lines.append(f"{name}: {s.n_events} events (no cross section: no events read)")
             continue

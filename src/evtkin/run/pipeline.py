@@ -25,7 +25,7 @@ from evtkin._version import __version__
 from evtkin.config import AnalysisConfig, SampleSpec, load_config
 from evtkin.errors import ConfigError, ResultsError
 from evtkin.hists.fill import HistAccumulator
-from evtkin.hists.normalise import normalise
+from evtkin.hists.normalise import normalise, normalise_counts
 from evtkin.hists.record import HistRecord
 from evtkin.hists.xsec import FileTotals, XsecResult
 from evtkin.run.chunkfill import varied_name
@@ -64,9 +64,14 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
             "weights; split them into separate samples"
         )
     variations = tuple(str(v) for v in (variation_sets.pop() if variation_sets else ()))
+    if spec.data:  # counted events (weights 1): no variation weights, no cross section
+        variations = ()
     xsec: XsecResult | None = None
     factor: Callable[[int, int], float]
-    if n_events > 0:
+    if spec.data:
+        def factor(file_index: int, pid: int) -> float:
+            return 1.0
+    elif n_events > 0:
         try:
             xsec = input_source(spec.format).cross_section(
                 spec, records, [_file_totals(partial, name, r.index) for r in records])
@@ -90,6 +95,9 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
 
     def normalised_of(hname: str, acc: HistAccumulator) -> HistRecord:
         try:
+            if spec.data:
+                return normalise_counts(acc, plan.histogram(hname).normalise,
+                                        luminosity_fb=spec.luminosity_fb)
             return normalise(acc, plan.histogram(hname).normalise,
                              luminosity_fb=spec.luminosity_fb)
         except ValueError as exc:
@@ -101,7 +109,7 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
         weighted[hname] = summed(hname, hname, variations)
         normalised[hname] = normalised_of(hname, weighted[hname])
     varied: dict[str, dict[str, HistRecord]] = {}
-    for vname, _sys, _sign in plan.variations:
+    for vname, _sys, _sign in () if spec.data else plan.variations:
         varied[vname] = {h: normalised_of(h, summed(h, varied_name(h, vname), ()))
                          for h in normalised}
 
@@ -121,7 +129,11 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
     from evtkin.hists.normalise import shape_fractions
     from evtkin.hists.recipes import bands_for, resolve_recipes
 
-    if records:
+    recipes: list[Any]
+    notes: list[str]
+    if spec.data:  # counted events: their errors are √N, no bands
+        recipes, notes = [], []
+    elif records:
         recipes, notes = resolve_recipes(plan.config, name, variations,
                                          [r.info for r in records])
     else:  # e.g. one part of a run split over jobs that holds none of this sample's files
@@ -143,7 +155,7 @@ def _sample_result(plan: Plan, spec: SampleSpec, partial: PartialResult) -> Samp
         nh.shape_bands = dict(shape_bands.get(h, {}))
     return SampleResult(name, spec.label, spec.luminosity_fb, spec.toy, xsec, variations,
                         normalised, weighted, cutflow, n_events, bands, shape_bands, recipes,
-                        notes, varied=varied, region_cutflows=region_cutflows)
+                        notes, varied=varied, region_cutflows=region_cutflows, data=spec.data)
 
 
 def _cutflow(rows: tuple[str, ...], index: Any, n_raw: np.ndarray, sum_w: np.ndarray,

@@ -49,6 +49,8 @@ class SampleResult:
     varied: dict[str, dict[str, HistRecord]] = field(default_factory=dict)
     #: per region: its cutflow (the common rows up to where it branches off, then its steps)
     region_cutflows: dict[str, list[dict[str, Any]]] = field(default_factory=dict)
+    #: a data sample (``data = true``): counted events, weight 1, no cross section
+    data: bool = False
 
 
 @dataclass(eq=False, repr=False)
@@ -125,6 +127,7 @@ def results_record(plan: Plan, result: RunResult, *, with_cutflow: bool = True) 
                         for h, nh in s.histograms.items()},
             cutflow=list(s.cutflow) if with_cutflow else [],
             region_cutflows=dict(getattr(s, "region_cutflows", {})) if with_cutflow else {},
+            data=s.data,
         )
     meta: dict[str, Any] = {"analysis": plan.config.name}
     if plan.config.note:
