@@ -413,3 +413,30 @@ def test_comparison_plot_geometry(tmp_path: Path, monkeypatch: pytest.MonkeyPatc
     import matplotlib.pyplot as plt
 
     plt.close(fig)
+
+
+def test_no_histogram_in_common_fails_the_command(tmp_path: Path,
+                                                  capsys: pytest.CaptureFixture[str]) -> None:
+    # not an exit 0 with an empty plots folder: the command fails and says why
+    from evtkin.cli import main
+
+    a, b = tmp_path / "a", tmp_path / "b"
+    _write_results_folder(a, make_results(make_sample("standard", 32, 0.0)))
+    other = make_results(make_sample("standard", 33, 0.0))
+    other.samples["standard"].histograms = {"other": other.samples["standard"].histograms["pt_lep"]}
+    _write_results_folder(b, other)
+    rc = main(["compare", str(a), str(b), "--out", str(tmp_path / "cmp")])
+    assert rc != 0
+    assert "nothing to compare" in capsys.readouterr().err
+    assert not list((tmp_path / "cmp").glob("plots/*.png"))
+
+
+def test_comparison_says_sqrt_s_when_the_inputs_agree() -> None:
+    a = make_results(make_sample("standard", 34, 0.0))
+    b = make_results(make_sample("standard", 35, 0.0))
+    assert compare_loaded([a, b], ["a", "b"]).corner == ""
+    for r in (a, b):
+        r.meta["plot"] = {"sqrt_s_gev": 13000.0}
+    assert compare_loaded([a, b], ["a", "b"]).corner == "√s = 13 TeV"
+    b.meta["plot"] = {"sqrt_s_gev": 8000.0}  # different energies: none is written
+    assert compare_loaded([a, b], ["a", "b"]).corner == ""

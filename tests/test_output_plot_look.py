@@ -183,3 +183,44 @@ def test_log_y_when_the_contents_span_more_than_three_decades() -> None:
         assert fig.axes[0].get_yscale() == "linear"
     finally:
         plt.close(fig)
+
+
+def test_multiplier_is_written_into_the_axis_label_and_no_title_by_default() -> None:
+    big = [_curve("sample A", _flat(3.0e5), "line"), _curve("sample B", _flat(3.1e5), "line")]
+    fig = figure_hist1d(big, x_label="m [GeV]", y_label="Events / 2 GeV", title="Some title",
+                        note=NOTE, options=PlotOptions(logy=False))
+    try:
+        fig.draw_without_rendering()
+        ax = fig.axes[0]
+        # 3·10⁷ per bin on a linear axis: the ticks read 0 .. 4 and the label says ×10⁷; no
+        # offset text "1e7" above the frame, where the notice is
+        off = ax.yaxis.get_offset_text()
+        assert not (off.get_visible() and off.get_text())
+        assert ax.get_ylabel().startswith("Events / 2 GeV  (")
+        assert "times" in ax.get_ylabel()
+        assert "10^{7}" in ax.get_ylabel()
+        # the report's caption carries the title: none in the figure unless asked for
+        assert ax.get_title() == ""
+        assert fig._suptitle is None or fig._suptitle.get_text() == ""
+    finally:
+        plt.close(fig)
+    fig = figure_hist1d(big, x_label="m [GeV]", y_label="Events", title="Some title",
+                        options=PlotOptions(title=True))
+    try:
+        texts = [fig._suptitle.get_text() if fig._suptitle else "", fig.axes[0].get_title()]
+        assert "Some title" in texts
+    finally:
+        plt.close(fig)
+
+
+def test_corner_text_sits_above_the_frame_on_the_right() -> None:
+    fig = _figure("stack + points, peaked")
+    try:
+        fig.draw_without_rendering()
+        ax = fig.axes[0]
+        (corner,) = [t for t in ax.texts if t.get_text() == "√s = 13 TeV, 140 fb⁻¹"]
+        box, frame = corner.get_window_extent(), ax.get_window_extent()
+        assert box.y0 >= frame.y1 - 1  # above the frame: it covers no data and no legend
+        assert abs(box.x1 - frame.x1) < 2  # right-aligned with the frame
+    finally:
+        plt.close(fig)

@@ -110,6 +110,10 @@ def test_plot_rejects_different_binning(tmp_path: Path) -> None:
         ("cos θ*", "cos θ*"),  # nothing to render
         ("top_pt", "top_pt"),  # an identifier, not a subscript
         ("$m_{ll}$", "$m_{ll}$"),  # already mathtext
+        # the d of a differential stays upright, as in dσ (common practice)
+        ("dσ/dm_{ℓℓ} [pb/GeV]", "dσ/d$m_{ℓℓ}$ [pb/GeV]"),
+        ("d²σ/(d\u2009m_{ℓℓ} d\u2009cos θ*)", "d²σ/(d\u2009$m_{ℓℓ}$ d\u2009cos θ*)"),
+        ("N_{b-tag}", "$N_{b\u2010tag}$"),  # a hyphen, not a minus sign between spaces
     ],
 )
 def test_display_label_renders_tex_scripts(text: str, expected: str) -> None:

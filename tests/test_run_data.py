@@ -146,6 +146,12 @@ def test_data_flag_in_results_cutflows_and_plots(files, tmp_path):
     assert kinds == {"dy": "line", "observed": "points"}
     pts = next(c for c in curves if c.name == "observed")
     np.testing.assert_array_equal(pts.errors, np.sqrt(np.histogram(m, bins=EDGES)[0]))
+    # above the frame: √s from the LHE beams (6500 + 6500 GeV head on: √s = 13 TeV, common
+    # practice) and, for expected events, the luminosity
+    assert raw["plot"]["sqrt_s_gev"] == pytest.approx(13000.0)
+    corners = {t[1][0].name: t[2]["corner"] for t in figure_tasks(out, back)}
+    assert corners["mll"] == "√s = 13 TeV, 2 fb⁻¹"
+    assert corners["mll_xs"] == "√s = 13 TeV"
     # a data sample cannot be stacked (evtkin plot)
     from evtkin.errors import ResultsError
 

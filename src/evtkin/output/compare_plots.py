@@ -24,7 +24,7 @@ import io
 import json
 import math
 import os
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -108,6 +108,8 @@ class ComparisonSet:
     note: str = ""
     skipped: list[str] = field(default_factory=list)
     out: str | None = None
+    #: the text above the frame on the right: √s when the inputs give one and agree
+    corner: str = ""
 
     def comparisons(self) -> list[tuple[ComparisonEntry, HistComparison]]:
         """Every (entry, comparison) pair sorted by the headline p-value, smallest first."""
@@ -317,7 +319,25 @@ def compare_loaded(
             f"nothing to compare: no 1-D histogram with the same binning in every input ({why})"
         )
     note = next((s.note for s in all_sources if s.note), "")
-    return ComparisonSet(all_sources, entries, shape_only, with_bands, note, sorted(skipped))
+    return ComparisonSet(all_sources, entries, shape_only, with_bands, note, sorted(skipped),
+                         corner=_sqrt_s_corner(results))
+
+
+def _sqrt_s_corner(results: Sequence[Any]) -> str:
+    """``√s = 13 TeV`` when the inputs that record √s (results.json ``plot.sqrt_s_gev``) agree
+    (no luminosity: comparisons are of cross sections or shapes, or of expected events whose
+    luminosities may differ)."""
+    from evtkin.output.style import sqrt_s_text
+
+    values = []
+    for r in results:
+        rec = (getattr(r, "meta", None) or {}).get("plot") or {}
+        v = rec.get("sqrt_s_gev") if isinstance(rec, Mapping) else None
+        if isinstance(v, (int, float)) and v > 0:
+            values.append(float(v))
+    if values and max(values) - min(values) <= 1e-6 * max(values):
+        return sqrt_s_text(values[0], None)
+    return ""
 
 
 def _incomparable(hrs: Sequence[Any]) -> str | None:
@@ -388,7 +408,8 @@ def _pair_entry(
 
 
 def plot_comparison(
-    entry: ComparisonEntry, path: str | os.PathLike[str], *, pulls: bool = False, note: str = ""
+    entry: ComparisonEntry, path: str | os.PathLike[str], *, pulls: bool = False, note: str = "",
+    corner: str = "",
 ) -> None:
     """Write one PNG: overlaid histograms, ratio panel, optional pull panel, notice above.
 
@@ -445,11 +466,11 @@ def plot_comparison(
         band = ax.stairs(bu, edges, baseline=np.maximum(bd, floor), fill=True,
                          color=colour_for(0), alpha=0.25, linewidth=0)
         handles.append((band, ref_line))
-        labels.append(f"{c0.label_a} (reference), band")
+        labels.append(f"Reference: {c0.label_a}, with band")
         skyline = np.maximum(skyline, bu)
     else:
         handles.append(ref_line)
-        labels.append(f"{c0.label_a} (reference)")
+        labels.append(f"Reference: {c0.label_a}")
     ax.errorbar(_positions(edges, fracs[0], False), ref_v, yerr=ref_e, fmt="none",
                 ecolor=colour_for(0), elinewidth=1)
     for k, c in enumerate(comps, start=1):
@@ -472,7 +493,7 @@ def plot_comparison(
         ax.set_ylim(min(0.0, float(np.nanmin(shown)) * 1.1), top * 1.08 if top > 0 else 1.0)
     apply_axes_style(ax, ylabel=display_label(entry.y_label))
     ax.tick_params(labelbottom=False)
-    corner_texts(ax, note=note)
+    corner_texts(ax, note=note, right=corner)
 
     rx = axes[1]
     with np.errstate(divide="ignore", invalid="ignore"):

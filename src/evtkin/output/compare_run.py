@@ -73,7 +73,8 @@ def compare_results(
             stem += "_"
         used.add(stem)
         e.plot = f"plots/{stem}.png"
-        tasks.append((plot_comparison, (e, outp / e.plot), {"pulls": pulls, "note": cs.note}))
+        tasks.append((plot_comparison, (e, outp / e.plot), {"pulls": pulls, "note": cs.note,
+                                                          "corner": cs.corner}))
     draw_all(tasks, workers)
     write_summary(cs, outp)
     if report:

@@ -523,7 +523,12 @@ def _ratio_panel(rx: Any, edges: np.ndarray, stacked: list[Curve], lines: list[C
                     yerr=e[fin], fmt="o", ms=3.5, color=col, elinewidth=1.0, zorder=5)
         values.append(r[fin])
     rx.set_ylim(*_ratio_limits(values, [b_lo[ok], b_hi[ok]]))
-    label = "Data / MC" if (points and tot is not None) else f"Ratio to {name}"
+    if points and tot is not None:
+        label = "Data / MC"
+    elif tot is None and ref is not None and 0 < len(ref.label) <= 18:
+        label = display_label(f"Ratio to {ref.label}")  # which line is the reference
+    else:
+        label = f"Ratio to {name}"
     rx.set_ylabel(label, fontsize=10)
 
 
@@ -534,6 +539,8 @@ def _y_label(h: HistResult, edges: np.ndarray) -> str:
     unit = h.axes[0].unit
     equal = bool(np.allclose(widths, widths[0], rtol=1e-9))
     per = f" / {widths[0]:.4g} {unit}".rstrip() if equal else " per bin"
+    if equal and not unit and abs(widths[0] - 1.0) < 1e-9:
+        per = ""  # a count (jets, leptons) in bins of one: "Events"
     if h.normalisation == "events":
         return "Events" + per
     if h.normalisation == "unit_area":

@@ -37,6 +37,7 @@ h2{font-size:1.25em;margin-top:1.8em;border-bottom:1px solid #ccd}
 h3{font-size:1.05em;margin-bottom:.3em}
 table{border-collapse:collapse;margin:.6em 0;font-size:.9em}
 th,td{border:1px solid #ccd;padding:.25em .6em;text-align:right;vertical-align:top}
+td:not(.l){white-space:nowrap}
 th{background:#eef}
 td.l,th.l{text-align:left}
 tr.low td{background:#fde8e8}
@@ -240,7 +241,7 @@ def _entry_png(cs: Any, e: Any, plot_comparison: Any) -> bytes:
         return out
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "plot.png"
-        plot_comparison(e, path, note=cs.note)
+        plot_comparison(e, path, note=cs.note, corner=getattr(cs, "corner", ""))
         return path.read_bytes()
 
 

@@ -134,13 +134,22 @@ def display_label(text: str) -> str:
     parser = MathTextParser("path")
 
     def wrap(m: re.Match[str]) -> str:
-        # a combining bar (t̄) becomes mathtext's \bar{t}: a combining mark is lost in math mode
-        candidate = "$" + re.sub("(.)[\u0304\u0305]", r"\\bar{\1}", m.group(0)) + "$"
+        word = m.group(0)
+        # the differential's d of dσ/dm_{ℓℓ} stays upright, like the d of dσ
+        lead = ""
+        if (word.startswith("d") and m.start() > 0 and text[m.start() - 1] == "/"
+                and _SCRIPTED.fullmatch(word[1:])):
+            lead, word = "d", word[1:]
+        # a combining bar (t̄) becomes mathtext's \bar{t}: a combining mark is lost in math mode;
+        # a hyphen between letters (N_{b-tag}) stays a hyphen, not a spaced minus sign
+        math = re.sub("(.)[\u0304\u0305]", r"\\bar{\1}", word)
+        math = re.sub(r"(?<=[^\W\d_])-(?=[^\W\d_])", "\u2010", math)
+        candidate = "$" + math + "$"
         try:
             parser.parse(candidate)
         except ValueError:
-            return m.group(0)
-        return candidate
+            return lead + word
+        return lead + candidate
 
     return _SCRIPTED.sub(wrap, text)
 
