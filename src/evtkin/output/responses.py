@@ -5,14 +5,14 @@ from __future__ import annotations
 import json
 from collections.abc import Mapping
 from pathlib import Path
-from typing import Any
 
 from evtkin.files import atomic_write_text
+from evtkin.hists.response import Response
 
 __all__ = ["write_responses"]
 
 
-def write_responses(folder: str | Path, responses: Mapping[str, Mapping[str, Any]]
+def write_responses(folder: str | Path, responses: Mapping[str, Mapping[str, Response]]
                     ) -> Path | None:
     """``responses.json`` from ``{sample: {histogram: Response}}``: per sample and histogram
     the matrix, truth and reco histograms, efficiency and purity (see

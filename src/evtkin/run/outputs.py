@@ -62,11 +62,10 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers:
 
         save_partial(out, result.partial, config_sha256=plan.config.sha256)
     tables.write_provenance(out, result.provenance)
-    if any(getattr(s, "responses", None) for s in result.samples.values()):
+    if any(s.responses for s in result.samples.values()):
         from evtkin.output.responses import write_responses
 
-        write_responses(out, {name: getattr(s, "responses", {})
-                              for name, s in result.samples.items()})
+        write_responses(out, {name: s.responses for name, s in result.samples.items()})
     if "report" in formats:  # last: it reads the folder back (and embeds the plots written above)
         from evtkin.output.report import write_run_report
 

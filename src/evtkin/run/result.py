@@ -10,6 +10,7 @@ from typing import Any
 
 from evtkin.hists.fill import HistAccumulator
 from evtkin.hists.record import HistRecord
+from evtkin.hists.response import Response
 from evtkin.hists.xsec import XsecResult
 from evtkin.output import tables
 from evtkin.output.results import Results
@@ -44,7 +45,7 @@ class SampleResult:
     recipes: list[Any] = field(default_factory=list)
     uncertainty_notes: list[str] = field(default_factory=list)
     #: per histogram marked ``response = true``: evtkin.hists.response.Response
-    responses: dict[str, Any] = field(default_factory=dict)
+    responses: dict[str, Response] = field(default_factory=dict)
     #: per object-level variation (``jes_up``, ...): its normalised histograms (nominal weight)
     varied: dict[str, dict[str, HistRecord]] = field(default_factory=dict)
     #: per region: its cutflow (the common rows up to where it branches off, then its steps)
