@@ -62,3 +62,26 @@ def test_root_tree_holds_the_same_rows(skimmed) -> None:  # type: ignore[no-unty
     assert ak.to_list(got["jet_pt"]) == want["jet_pt"]
     assert ak.to_list(got["n_jet_pt"]) == [len(x) for x in want["jet_pt"]]
     assert not (out / "skims" / ".parts").exists()
+
+
+def test_a_part_write_that_fails_leaves_no_part_file(tmp_path, monkeypatch) -> None:  # type: ignore[no-untyped-def]
+    from evtkin.run import skims
+
+    def half_then_fail(array, path, *args, **kw):  # type: ignore[no-untyped-def]
+        with open(path, "wb") as fh:
+            fh.write(b"PAR1 half a file")
+        raise OSError("disk full")
+
+    cols = {"x": ak.Array(np.arange(4.0))}
+    args = (tmp_path, "sel", "s", 1, 2, cols, np.ones(4, dtype=bool), 0,
+            np.ones(4, dtype=np.int32), np.ones(4), np.zeros((4, 0)), ())
+    monkeypatch.setattr(skims.ak, "to_parquet", half_then_fail)
+    with pytest.raises(OSError, match="disk full"):
+        skims.write_part(*args)
+    part_dir = tmp_path / skims.PARTS / "sel" / "s"
+    assert list(part_dir.iterdir()) == []  # neither the part nor its temporary file
+    monkeypatch.undo()
+    written = skims.write_part(*args)
+    assert written is not None
+    assert written.parent == part_dir
+    assert ak.to_list(ak.from_parquet(written)["x"]) == [0.0, 1.0, 2.0, 3.0]

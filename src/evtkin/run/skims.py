@@ -82,7 +82,8 @@ def write_part(folder: str | os.PathLike[str], skim: str, sample: str, unit: int
     data["file_index"] = np.full(int(mask.sum()), file_index, dtype=np.int32)
     data["process_id"] = np.asarray(process_id[mask], dtype=np.int32)
     path = d / f"u{unit:06d}-c{chunk:06d}.parquet"
-    ak.to_parquet(ak.zip(data, depth_limit=1), path)
+    with atomic_path(path) as tmp:  # a worker stopped midway leaves no half part file
+        ak.to_parquet(ak.zip(data, depth_limit=1), tmp)
     return path
 
 
@@ -126,7 +127,9 @@ def assemble_skims(plan: Any, folder: str | os.PathLike[str],
             if skim.samples is not None and sample not in skim.samples:
                 continue
             d = parts_root / safe_name(sname) / safe_name(sample)
-            parts = sorted(d.glob("*.parquet")) if d.is_dir() else []
+            # hidden names are temporary files of part writes that never finished
+            parts = sorted(p for p in d.glob("*.parquet") if not p.name.startswith(".")
+                           ) if d.is_dir() else []
             out_dir = root / safe_name(sname)
             out_dir.mkdir(parents=True, exist_ok=True)
             base = out_dir / safe_name(sample)

@@ -45,6 +45,7 @@ from collections.abc import Iterable
 import awkward as ak
 import numpy as np
 
+from evtkin.files import atomic_path
 from evtkin.toy.constants import TOY_NOTICE
 
 __all__ = ["simulate", "write_ntuple"]
@@ -157,7 +158,7 @@ def write_ntuple(path: str, chunks: Iterable[ak.Array], *, seed: int) -> int:
     import uproot
 
     n_done = 0
-    with uproot.recreate(path) as f:
+    with atomic_path(path) as tmp, uproot.recreate(tmp) as f:
         f["README"] = TOY_NOTICE
         tree = f.mktree(TREE, dict(_TYPES), title="evtkin toy data - not a physics prediction")
         for i, chunk in enumerate(chunks):
