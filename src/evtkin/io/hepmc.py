@@ -102,9 +102,42 @@ def scanner_kind() -> str:
 # ------------------------------------------------------------------ one buffer
 
 
-class Parsed:
-    """The compacted columns of one buffer's events and what the scan reported."""
+class Scratch:
+    """The columns one scan writes (sized for the events of ``nbytes`` of text), reused
+    from buffer to buffer: only the pages a scan touches are ever resident."""
 
+    nbytes: int = -1
+
+    def __init__(self, nbytes: int) -> None:
+        self.ensure(nbytes)
+
+    def ensure(self, nbytes: int) -> None:
+        if nbytes <= self.nbytes:
+            return
+        self.nbytes = nbytes = int(nbytes)
+        cap = c.capacities(nbytes)
+        ce, cp, cv = cap["events"], cap["particles"], cap["vertices"]
+        self.ev_i = np.empty((c.N_EVI, ce), np.int64)
+        self.ev_f = np.empty((c.N_EVF, ce), np.float64)
+        self.p_off = np.empty(ce + 1, np.int64)
+        self.v_off = np.empty(ce + 1, np.int64)
+        self.p_i = np.empty((c.N_PI, cp), np.int32)
+        self.p_f = np.empty((c.N_PF, cp), np.float64)
+        self.v_i = np.empty(cv, np.int32)
+        self.v_f = np.empty((c.N_VF, cv), np.float64)
+        self.wts = np.empty(cap["weights"], np.float64)
+        self.pscr = np.empty((3, cp), np.int64)
+        self.vscr = np.empty((4, cv), np.int64)
+        self.inl = np.empty(cap["incoming"], np.int64)
+        self.slow = np.empty((cap["slow"], 5), np.int64)
+        self.errs = np.empty((cap["errors"], 6), np.int64)
+
+
+class Parsed:
+    """One buffer's events and what the scan reported: views of its :class:`Scratch`
+    (valid until the scratch is scanned into again; offsets relative to the buffer)."""
+
+    scratch: Scratch
     n_ev: int
     n_done: int  # events complete before an error
     ev_i: np.ndarray
@@ -127,53 +160,45 @@ class Parsed:
 
 def scan_buffer(
     kernel: Callable[..., Any], arr: np.ndarray, form: int, k: int, final: bool,
-    stop: int, lenient: bool,
+    stop: int, lenient: bool, scratch: Scratch | None = None,
 ) -> Parsed:  # fmt: skip
-    """Scan one buffer of whole events into compacted columns (offsets relative)."""
-    cap = c.capacities(arr.shape[0])
-    ce, cp, cv = cap["events"], cap["particles"], cap["vertices"]
+    """Scan one buffer of whole events into ``scratch`` (a new one if None); the result's
+    columns are views of it, units converted to GeV and mm."""
+    if scratch is None:
+        scratch = Scratch(arr.shape[0])
+    else:
+        scratch.ensure(arr.shape[0])
+    w = scratch
     cfg = np.zeros(c.CFG_SIZE, np.int64)
     cfg[c.CFG_FORM], cfg[c.CFG_K], cfg[c.CFG_FINAL] = form, k, int(final)
     cfg[c.CFG_STOP], cfg[c.CFG_LENIENT] = min(stop, 1 << 62), int(lenient)
     st = np.zeros(c.ST_SIZE, np.int64)
-    ev_i = np.empty((c.N_EVI, ce), np.int64)
-    ev_f = np.empty((c.N_EVF, ce), np.float64)
-    p_off = np.empty(ce + 1, np.int64)
-    v_off = np.empty(ce + 1, np.int64)
-    p_i = np.empty((c.N_PI, cp), np.int32)
-    p_f = np.empty((c.N_PF, cp), np.float64)
-    v_i = np.empty(cv, np.int32)
-    v_f = np.empty((c.N_VF, cv), np.float64)
-    wts = np.empty(max(min(cap["weights"], ce * k), 1), np.float64)
-    pscr = np.empty((3, cp), np.int64)
-    vscr = np.empty((4, cv), np.int64)
-    inl = np.empty(cap["incoming"], np.int64)
-    slow = np.empty((cap["slow"], 5), np.int64)
-    errs = np.empty((cap["errors"], 6), np.int64)
-    kernel(arr, cfg, st, ev_i, ev_f, p_off, v_off, p_i, p_f, v_i, v_f, wts, pscr, vscr, inl,
-           slow, errs)  # fmt: skip
+    wts = w.wts if w.wts.shape[0] >= 1 else np.empty(1)
+    kernel(arr, cfg, st, w.ev_i, w.ev_f, w.p_off, w.v_off, w.p_i, w.p_f, w.v_i, w.v_f, wts,
+           w.pscr, w.vscr, w.inl, w.slow, w.errs)  # fmt: skip
     out = Parsed()
+    out.scratch = w
     n_ev, n_p, n_v = int(st[c.ST_EV]), int(st[c.ST_NP]), int(st[c.ST_NV])
     out.status, out.pos = int(st[c.ST_STATUS]), int(st[c.ST_POS])
     out.errpos, out.evstart = int(st[c.ST_ERRPOS]), int(st[c.ST_EVSTART])
     out.a, out.b = int(st[c.ST_A]), int(st[c.ST_B])
-    out.errs = errs[: int(st[c.ST_NERR])].copy()
+    out.errs = w.errs[: int(st[c.ST_NERR])].copy()
     out.n_done = n_ev
     if out.status >= c.ERR_LINE:
         n_ev = n_p = n_v = 0
     nslow = int(st[c.ST_NSLOW])
     if nslow and n_ev:
-        c.fix_slow(arr, slow[:nslow], ev_f, p_f, v_f, wts)
+        c.fix_slow(arr, w.slow[:nslow], w.ev_f, w.p_f, w.v_f, w.wts)
     out.n_ev = n_ev
-    out.ev_i = ev_i[:, :n_ev].copy()
-    out.ev_f = ev_f[:, :n_ev].copy()
-    out.wts = wts[: n_ev * k].reshape(n_ev, k).copy()
-    out.p_off = p_off[: n_ev + 1].copy()
-    out.v_off = v_off[: n_ev + 1].copy()
-    out.p_i = p_i[:, :n_p].copy()
-    out.p_f = p_f[:, :n_p].copy()
-    out.v_i = v_i[:n_v].copy()
-    out.v_f = v_f[:, :n_v].copy()
+    out.ev_i = w.ev_i[:, :n_ev]
+    out.ev_f = w.ev_f[:, :n_ev]
+    out.wts = w.wts[: n_ev * k].reshape(n_ev, k)
+    out.p_off = w.p_off[: n_ev + 1]
+    out.v_off = w.v_off[: n_ev + 1]
+    out.p_i = w.p_i[:, :n_p]
+    out.p_f = w.p_f[:, :n_p]
+    out.v_i = w.v_i[:n_v]
+    out.v_f = w.v_f[:, :n_v]
     _finish_columns(out, form, k)
     return out
 
@@ -199,52 +224,79 @@ def _finish_columns(out: Parsed, form: int, k: int) -> None:
 # ------------------------------------------------------------------ chunks
 
 
-def _concat(parts: list[tuple[Parsed, int, int]], k: int, wnames: tuple[str, ...]) -> ak.Array:
-    """One chunk from events ``[a, b)`` of each parsed buffer, as an awkward Array."""
-    ev_i, ev_f, wts, p_i, p_f, v_i, v_f = [], [], [], [], [], [], []
-    p_counts, v_counts = [], []
-    for s, a, b in parts:
-        ev_i.append(s.ev_i[:, a:b])
-        ev_f.append(s.ev_f[:, a:b])
-        wts.append(s.wts[a:b])
+class _Chunk:
+    """The columns of one output chunk of ``step`` events, filled by copying from scans
+    (particle and vertex columns grow when the estimate was short)."""
+
+    def __init__(self, step: int, k: int, p_cap: int, v_cap: int) -> None:
+        self.n = self.np = self.nv = 0
+        self.k = k
+        self.number = np.empty(step, np.int64)
+        self.ev_f = np.empty((c.N_EVF, step), np.float64)
+        self.wts = np.empty((step, k), np.float64)
+        self.p_off = np.empty(step + 1, np.int64)
+        self.v_off = np.empty(step + 1, np.int64)
+        self.p_off[0] = self.v_off[0] = 0
+        self.p_i = np.empty((c.N_PI, max(p_cap, 1)), np.int32)
+        self.p_f = np.empty((c.N_PF, max(p_cap, 1)), np.float64)
+        self.v_i = np.empty(max(v_cap, 1), np.int32)
+        self.v_f = np.empty((c.N_VF, max(v_cap, 1)), np.float64)
+
+    def add(self, s: Parsed, a: int, b: int) -> None:
+        """Append the events ``[a, b)`` of ``s``."""
+        m = b - a
+        n, np0, nv0 = self.n, self.np, self.nv
         pa, pb = int(s.p_off[a]), int(s.p_off[b])
         va, vb = int(s.v_off[a]), int(s.v_off[b])
-        p_i.append(s.p_i[:, pa:pb])
-        p_f.append(s.p_f[:, pa:pb])
-        v_i.append(s.v_i[va:vb])
-        v_f.append(s.v_f[:, va:vb])
-        p_counts.append(np.diff(s.p_off[a : b + 1]))
-        v_counts.append(np.diff(s.v_off[a : b + 1]))
+        kp, kv = pb - pa, vb - va
+        if np0 + kp > self.p_i.shape[1]:
+            cap = max(np0 + kp, 2 * self.p_i.shape[1])
+            p_i, p_f = np.empty((c.N_PI, cap), np.int32), np.empty((c.N_PF, cap))
+            p_i[:, :np0], p_f[:, :np0] = self.p_i[:, :np0], self.p_f[:, :np0]
+            self.p_i, self.p_f = p_i, p_f
+        if nv0 + kv > self.v_i.shape[0]:
+            cap = max(nv0 + kv, 2 * self.v_i.shape[0])
+            v_i, v_f = np.empty(cap, np.int32), np.empty((c.N_VF, cap))
+            v_i[:nv0], v_f[:, :nv0] = self.v_i[:nv0], self.v_f[:, :nv0]
+            self.v_i, self.v_f = v_i, v_f
+        self.number[n : n + m] = s.ev_i[0, a:b]
+        self.ev_f[:, n : n + m] = s.ev_f[:, a:b]
+        self.wts[n : n + m] = s.wts[a:b]
+        np.add(s.p_off[a + 1 : b + 1], np0 - pa, out=self.p_off[n + 1 : n + m + 1])
+        np.add(s.v_off[a + 1 : b + 1], nv0 - va, out=self.v_off[n + 1 : n + m + 1])
+        self.p_i[:, np0 : np0 + kp] = s.p_i[:, pa:pb]
+        self.p_f[:, np0 : np0 + kp] = s.p_f[:, pa:pb]
+        self.v_i[nv0 : nv0 + kv] = s.v_i[va:vb]
+        self.v_f[:, nv0 : nv0 + kv] = s.v_f[:, va:vb]
+        self.n += m
+        self.np += kp
+        self.nv += kv
 
-    def cat(xs: list[np.ndarray], axis: int) -> np.ndarray:
-        return xs[0].copy() if len(xs) == 1 else np.concatenate(xs, axis=axis)
-
-    E_i, E_f, W = cat(ev_i, 1), cat(ev_f, 1), cat(wts, 0)
-    P_i, P_f, V_i, V_f = cat(p_i, 1), cat(p_f, 1), cat(v_i, 0), cat(v_f, 1)
-    n = E_i.shape[1]
-    p_off = np.zeros(n + 1, np.int64)
-    v_off = np.zeros(n + 1, np.int64)
-    np.cumsum(np.concatenate(p_counts), out=p_off[1:])
-    np.cumsum(np.concatenate(v_counts), out=v_off[1:])
-    C = ak.contents
-    pfields = [C.NumpyArray(np.ascontiguousarray(P_i[j])) for j in range(c.N_PI)]
-    pfields += [C.NumpyArray(np.ascontiguousarray(P_f[j])) for j in range(c.N_PF)]
-    particles = C.ListOffsetArray(
-        ak.index.Index64(p_off),
-        C.RecordArray(pfields, list(PARTICLE_FIELDS), parameters={"__record__": "Particle"}),
-    )
-    vfields = [C.NumpyArray(V_i)] + [C.NumpyArray(np.ascontiguousarray(V_f[j])) for j in range(4)]
-    vertices = C.ListOffsetArray(
-        ak.index.Index64(v_off),
-        C.RecordArray(vfields, list(VERTEX_FIELDS), length=int(v_off[-1])),
-    )
-    W = np.ascontiguousarray(W).reshape(n, k)
-    weights = C.RegularArray(C.NumpyArray(W.reshape(-1)), k, zeros_length=n)
-    columns: list[Any] = [C.NumpyArray(np.ascontiguousarray(E_i[0]))]
-    columns += [C.NumpyArray(np.ascontiguousarray(E_f[j])) for j in range(c.N_EVF)]
-    columns += [weights, _events.named_weights(W, wnames), particles, vertices]
-    names = ["event_number", *EVENT_FIELDS, "weights", "named_weights", "particles", "vertices"]
-    return ak.Array(C.RecordArray(columns, names, length=n))
+    def to_awkward(self, wnames: tuple[str, ...]) -> ak.Array:
+        """Zero-copy awkward layout over the filled part of the columns."""
+        n, n_p, n_v, k = self.n, self.np, self.nv, self.k
+        C = ak.contents
+        pfields = [C.NumpyArray(self.p_i[j, :n_p]) for j in range(c.N_PI)]
+        pfields += [C.NumpyArray(self.p_f[j, :n_p]) for j in range(c.N_PF)]
+        particles = C.ListOffsetArray(
+            ak.index.Index64(self.p_off[: n + 1]),
+            C.RecordArray(
+                pfields, list(PARTICLE_FIELDS), length=n_p, parameters={"__record__": "Particle"}
+            ),
+        )
+        vfields = [C.NumpyArray(self.v_i[:n_v])]
+        vfields += [C.NumpyArray(self.v_f[j, :n_v]) for j in range(c.N_VF)]
+        vertices = C.ListOffsetArray(
+            ak.index.Index64(self.v_off[: n + 1]),
+            C.RecordArray(vfields, list(VERTEX_FIELDS), length=n_v),
+        )
+        W = self.wts[:n]
+        weights = C.RegularArray(C.NumpyArray(W.reshape(-1)), k, zeros_length=n)
+        columns: list[Any] = [C.NumpyArray(self.number[:n])]
+        columns += [C.NumpyArray(self.ev_f[j, :n]) for j in range(c.N_EVF)]
+        columns += [weights, _events.named_weights(W, wnames), particles, vertices]
+        names = ["event_number", *EVENT_FIELDS, "weights", "named_weights", "particles", "vertices"]
+        return ak.Array(C.RecordArray(columns, names, length=n))
 
 
 # ------------------------------------------------------------------ buffers
@@ -263,6 +315,7 @@ class _Buffers:
         self.stream = stream
         self.source = source
         self.items = self._produce(first, base)
+        self.free: queue.SimpleQueue[bytearray] = queue.SimpleQueue()
         self.stop = threading.Event()
         self.thread: threading.Thread | None = None
         if threaded:
@@ -272,30 +325,54 @@ class _Buffers:
             self.thread.start()
 
     def _produce(self, first: bytes, base: int) -> Iterator[tuple[int, np.ndarray, bool, Any]]:
-        data = bytearray(first)
+        carry = first
         want = BUFFER_BYTES
         while True:
-            error = None
+            size = want
+            while len(carry) + (1 << 20) > size:
+                size *= 2
+            buf = self._buffer(size)
+            buf[: len(carry)] = carry
+            fill = len(carry)
             eof = False
-            while len(data) < want:
-                block = self.stream.read(want - len(data))
-                if not block:
-                    eof = True
-                    error = getattr(self.stream, "error", None)
-                    break
-                data += block
+            with memoryview(buf)[:size] as mv:
+                while fill < size:
+                    got = self.stream.readinto(mv[fill:])  # type: ignore[union-attr]
+                    if not got:
+                        eof = True
+                        break
+                    fill += got
             if eof:
-                yield base, np.frombuffer(bytes(data), np.uint8), True, error
+                error = getattr(self.stream, "error", None)
+                yield base, np.frombuffer(buf, np.uint8, count=fill), True, error
                 return
-            cut = data.rfind(_CUT, 1) + 1
+            cut = buf.rfind(_CUT, 1, fill) + 1
             if cut <= 0:  # one event larger than the buffer: read more
-                want = 2 * len(data)
+                want = 2 * size
+                carry = bytes(buf[:fill])
                 continue
             want = BUFFER_BYTES
-            out = np.frombuffer(bytes(data[:cut]), np.uint8)
-            del data[:cut]
-            yield base, out, False, None
+            carry = bytes(buf[cut:fill])
+            yield base, np.frombuffer(buf, np.uint8, count=cut), False, None
             base += cut
+
+    def _buffer(self, size: int) -> bytearray:
+        """A recycled buffer of at least ``size`` bytes (its pages already touched), or a
+        new one."""
+        while True:
+            try:
+                buf = self.free.get_nowait()
+            except queue.Empty:
+                return bytearray(size)
+            if len(buf) >= size:
+                return buf
+
+    def recycle(self, arr: np.ndarray) -> None:
+        """Hand back the buffer under ``arr`` (a scan of it has been consumed)."""
+        base = arr.base
+        owner = base.obj if isinstance(base, memoryview) else base
+        if isinstance(owner, bytearray):
+            self.free.put(owner)
 
     def _run(self) -> None:
         try:
@@ -594,15 +671,17 @@ def _iterate(
     pool = (ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-hepmc-parse")
             if threads > 0 else None)  # fmt: skip
 
+    free: list[Scratch] = []  # scratch columns of scans already consumed
+
     def submit(arr: np.ndarray, b: int, final: bool) -> Future[Parsed] | _Done:
-        args = (kernel, arr, form, k, final, stop_abs - b, not strict)
+        scratch = free.pop() if free else None
+        args = (kernel, arr, form, k, final, stop_abs - b, not strict, scratch)
         if pool is None:
             return _Done(scan_buffer, *args)
         return pool.submit(scan_buffer, *args)
 
     pending: deque[tuple[int, np.ndarray, bool, Any, Future[Parsed] | _Done]] = deque()
-    parts: list[tuple[Parsed, int, int]] = []
-    in_chunk = 0
+    chunk: _Chunk | None = None
     n_seen = 0
     skipped: list[tuple[int, int, str]] = []  # absolute start, resume, reason
     n_skipped = 0
@@ -649,16 +728,23 @@ def _iterate(
             # hand the events to chunks of exactly ``step``
             a = 0
             while a < s.n_ev:
-                take = min(step - in_chunk, s.n_ev - a)
-                parts.append((s, a, a + take))
-                in_chunk += take
+                if chunk is None:
+                    per_p = (s.p_off[s.n_ev] + 1) / s.n_ev
+                    per_v = (s.v_off[s.n_ev] + 1) / s.n_ev
+                    chunk = _Chunk(step, k, int(per_p * step * 1.1) + 64,
+                                   int(per_v * step * 1.1) + 64)  # fmt: skip
+                take = min(step - chunk.n, s.n_ev - a)
+                chunk.add(s, a, a + take)
                 a += take
-                if in_chunk >= step:
-                    out = _concat(parts, k, wnames)
-                    parts, in_chunk = [], 0
+                if chunk.n >= step:
+                    out = chunk.to_awkward(wnames)
+                    chunk = None
                     yield out
                     del out
             n_seen += s.n_ev
+            free.append(s.scratch)
+            if s.status == c.ST_OK:
+                reader.recycle(arr)
             if s.status == c.ST_END:
                 saw_end = True
                 later = [item[1] for item in pending]
@@ -694,9 +780,9 @@ def _iterate(
         elif not saw_end and not stopped and need_end:
             _problem(f"{name}: the file ends without the END_EVENT_LISTING line after "
                      f"{n_seen} complete events (cut short?)", strict)  # fmt: skip
-        if parts:
-            out = _concat(parts, k, wnames)
-            parts = []
+        if chunk is not None and chunk.n:
+            out = chunk.to_awkward(wnames)
+            chunk = None
             yield out
     finally:
         reader.close()

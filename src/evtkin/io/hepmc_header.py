@@ -105,6 +105,25 @@ class TolerantStream:
         self.pos += len(out)
         return out
 
+    def readinto(self, buf: memoryview) -> int:
+        """Read into ``buf`` (the stream's own ``readinto``, no copy for plain files)."""
+        if self.tail is None:
+            try:
+                got = int(self.raw.readinto(buf))  # type: ignore[attr-defined]
+            except Exception as exc:  # each decoder has its own error types
+                kind = self.kind or "plain"
+                self.error = _err(self.source, f"cannot read ({kind} stream is corrupt or cut "
+                                               f"short?): {exc}")  # fmt: skip
+                self.tail = _salvage(self.source, self.pos, self.kind)
+            else:
+                self.pos += got
+                return got
+        k = min(len(buf), len(self.tail))
+        buf[:k] = self.tail[:k]
+        self.tail = self.tail[k:]
+        self.pos += k
+        return k
+
     def close(self) -> None:
         self.raw.close()
 

@@ -112,6 +112,12 @@ _A_AQED = np.frombuffer(b"alphaQED", dtype=np.uint8).copy()
 _A_SCALE = np.frombuffer(b"event_scale", dtype=np.uint8).copy()
 _A_XSEC = np.frombuffer(b"GenCrossSection", dtype=np.uint8).copy()
 
+U = np.uint64  # index cast: unsigned indices need no wrap-around code
+_DOT48 = np.uint64(46 - 48 + (1 << 64))  # '.' - '0' as an unsigned byte difference
+_SEPS = np.zeros(256, np.bool_)
+_SEPS[[32, 9, 13, 11, 12]] = True
+_ENDS = _SEPS.copy()
+_ENDS[10] = True
 _POW10 = np.array([10.0**i for i in range(23)])
 _TWO53 = 2**53
 
@@ -354,9 +360,14 @@ def _finish_v3(p_i, pscr, vscr, inl, v_i, v_f, p0, p1, v0, nv, decl_np, decl_nv,
     porder, pseq, pdup = _index(pids)
     if pdup >= 0:
         return ERR_DUP_ID, pscr[2, p0 + pdup], pids[pdup], 0, nv
+    m = p1 - p0
     for w in range(v0, nv):
         for q in range(vscr[2, w], vscr[3, w]):
-            j = _lookup(pids, porder, pseq, inl[q])
+            key = inl[q]
+            if pseq == 1:
+                j = key - 1 if 1 <= key <= m else -1
+            else:
+                j = _lookup(pids, porder, pseq, key)
             if j < 0 or pscr[2, p0 + j] > vscr[1, w]:
                 return ERR_PARTICLE_REF, vscr[1, w], inl[q], 0, nv
             if p_i[3, p0 + j] != -1:
@@ -368,12 +379,18 @@ def _finish_v3(p_i, pscr, vscr, inl, v_i, v_f, p0, p1, v0, nv, decl_np, decl_nv,
         if r == 0:
             p_i[2, i] = -1
         elif r < 0:
-            w = _lookup(vids, vorder, vseq, r)
+            if vseq == -1:  # noqa: SIM108 - (compiled code)
+                w = -r - 1 if -r <= nv - v0 else -1
+            else:
+                w = _lookup(vids, vorder, vseq, r)
             if w < 0 or vscr[1, v0 + w] > pscr[2, i]:
                 return ERR_VERTEX_REF, pscr[2, i], r, 0, nv
             p_i[2, i] = w
         else:
-            j = _lookup(pids, porder, pseq, r)
+            if pseq == 1:  # noqa: SIM108 - (compiled code)
+                j = r - 1 if r <= m else -1
+            else:
+                j = _lookup(pids, porder, pseq, r)
             if j < 0 or j >= i - p0:
                 return ERR_PARTICLE_REF, pscr[2, i], r, 0, nv
             ev = p_i[3, p0 + j]
@@ -454,7 +471,259 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
     v_line = 0
     v_decl = 0
     status = ST_OK
+    fast = form == FORM_V3 and n > 1 and buf[n - 1] == 10  # (a sentinel)
     while True:
+        # ---- fast path: an Asciiv3 P line of plain tokens inside an event. It either
+        # accepts the line with exactly the generic path's columns, or leaves everything
+        # to the generic path below (which then finds the same values, a slow token or
+        # the error).
+        if (fast and in_ev and pos < n and buf[U(pos)] == 80
+                and _SEPS[buf[U(pos + 1)]]):  # fmt: skip
+            q = pos + 1
+            good = True
+            pid = 0
+            ref = 0
+            pdg = 0
+            for fi in range(3):  # id, parent, pdgid
+                while _SEPS[buf[U(q)]]:
+                    q += 1
+                c = buf[U(q)]
+                neg = c == 45
+                if neg or c == 43:
+                    q += 1
+                mant = 0
+                s0 = q
+                while True:
+                    dg = U(buf[U(q)]) - U(48)
+                    if dg > U(9):
+                        break
+                    mant = mant * 10 + np.int64(dg)
+                    q += 1
+                if q == s0 or q - s0 > 10 or mant > INT32_MAX or not _ENDS[buf[U(q)]]:
+                    good = False
+                    break
+                if neg:
+                    mant = -mant
+                if fi == 0:
+                    pid = mant
+                elif fi == 1:
+                    ref = mant
+                else:
+                    pdg = mant
+            if good:
+                for d in range(5):  # px, py, pz, e, m
+                    while _SEPS[buf[U(q)]]:
+                        q += 1
+                    c = buf[U(q)]
+                    neg = c == 45
+                    if neg or c == 43:
+                        q += 1
+                    mant = 0
+                    s0 = q
+                    dot = -1
+                    while True:
+                        dg = U(buf[U(q)]) - U(48)
+                        if dg <= U(9):
+                            mant = mant * 10 + np.int64(dg)
+                        elif dg == _DOT48 and dot < 0:
+                            dot = q
+                        else:
+                            break
+                        q += 1
+                    nd = q - s0
+                    e10 = 0
+                    if dot >= 0:
+                        nd -= 1
+                        e10 = dot + 1 - q
+                    if nd <= 0 or nd > 18:
+                        good = False
+                        break
+                    c = buf[U(q)]
+                    if c == 101 or c == 69:
+                        q += 1
+                        eneg = False
+                        if buf[U(q)] == 45 or buf[U(q)] == 43:
+                            eneg = buf[U(q)] == 45
+                            q += 1
+                        ex = 0
+                        xs = q
+                        while U(buf[U(q)]) - U(48) <= U(9) and q - xs < 4:
+                            ex = ex * 10 + np.int64(buf[U(q)] - 48)
+                            q += 1
+                        if q == xs or q - xs > 3:
+                            good = False
+                            break
+                        e10 += -ex if eneg else ex
+                        c = buf[U(q)]
+                    if mant > _TWO53 or e10 < -22 or e10 > 22 or not _ENDS[c]:
+                        good = False
+                        break
+                    x = np.float64(mant)
+                    x = x * _POW10[U(e10)] if e10 >= 0 else x / _POW10[U(-e10)]
+                    p_f[U(d), U(npt)] = -x if neg else x
+            if good:  # status
+                while _SEPS[buf[U(q)]]:
+                    q += 1
+                c = buf[U(q)]
+                neg = c == 45
+                if neg or c == 43:
+                    q += 1
+                mant = 0
+                s0 = q
+                while True:
+                    dg = U(buf[U(q)]) - U(48)
+                    if dg > U(9):
+                        break
+                    mant = mant * 10 + np.int64(dg)
+                    q += 1
+                if q == s0 or q - s0 > 10 or mant > INT32_MAX:
+                    good = False
+                while _SEPS[buf[U(q)]]:
+                    q += 1
+                if good and buf[U(q)] == 10:
+                    p_i[0, U(npt)] = pdg
+                    p_i[1, U(npt)] = -mant if neg else mant
+                    p_i[2, U(npt)] = -1
+                    p_i[3, U(npt)] = -1
+                    pscr[0, U(npt)] = pid
+                    pscr[1, U(npt)] = ref
+                    pscr[2, U(npt)] = pos
+                    npt += 1
+                    pos = q + 1
+                    continue
+        # ---- fast path: an Asciiv3 V line of plain tokens (same contract as above)
+        if (fast and in_ev and pos < n and buf[U(pos)] == 86
+                and _SEPS[buf[U(pos + 1)]]):  # fmt: skip
+            q = pos + 1
+            good = True
+            vid = 0
+            vst = 0
+            for fi in range(2):
+                while _SEPS[buf[U(q)]]:
+                    q += 1
+                neg = False
+                if (buf[U(q)] == 45 or buf[U(q)] == 43):
+                    neg = buf[U(q)] == 45
+                    q += 1
+                mant = 0
+                s0 = q
+                while U(buf[U(q)]) - U(48) <= U(9) and q - s0 < 11:
+                    mant = mant * 10 + np.int64(buf[U(q)] - 48)
+                    q += 1
+                if q == s0 or q - s0 > 10 or mant > INT32_MAX or not _ENDS[buf[U(q)]]:
+                    good = False
+                    break
+                if fi == 0:
+                    vid = -mant if neg else mant
+                else:
+                    vst = -mant if neg else mant
+            a_in = nin
+            if good:
+                while _SEPS[buf[U(q)]]:
+                    q += 1
+                if buf[U(q)] == 91:
+                    q += 1
+                    if buf[U(q)] == 93:
+                        q += 1
+                    else:
+                        while True:
+                            neg = False
+                            if (buf[U(q)] == 45 or buf[U(q)] == 43):
+                                neg = buf[U(q)] == 45
+                                q += 1
+                            mant = 0
+                            s0 = q
+                            while U(buf[U(q)]) - U(48) <= U(9) and q - s0 < 11:
+                                mant = mant * 10 + np.int64(buf[U(q)] - 48)
+                                q += 1
+                            if q == s0 or q - s0 > 10 or mant > INT32_MAX:
+                                good = False
+                                break
+                            inl[U(nin)] = -mant if neg else mant
+                            nin += 1
+                            c = buf[U(q)]
+                            q += 1
+                            if c == 44:
+                                continue
+                            if c != 93:
+                                good = False
+                            break
+                    if good and not _ENDS[buf[U(q)]]:
+                        good = False
+                else:
+                    good = False
+            if good:
+                while _SEPS[buf[U(q)]]:
+                    q += 1
+                if buf[U(q)] == 10:
+                    for d in range(4):
+                        v_f[U(d), U(nv)] = 0.0
+                elif buf[U(q)] == 64 and _SEPS[buf[U(q + 1)]]:
+                    q += 1
+                    for d in range(4):
+                        while _SEPS[buf[U(q)]]:
+                            q += 1
+                        c = buf[U(q)]
+                        neg = c == 45
+                        if neg or c == 43:
+                            q += 1
+                        mant = 0
+                        s0 = q
+                        dot = -1
+                        while True:
+                            dg = U(buf[U(q)]) - U(48)
+                            if dg <= U(9):
+                                mant = mant * 10 + np.int64(dg)
+                            elif dg == _DOT48 and dot < 0:
+                                dot = q
+                            else:
+                                break
+                            q += 1
+                        nd = q - s0
+                        e10 = 0
+                        if dot >= 0:
+                            nd -= 1
+                            e10 = dot + 1 - q
+                        if nd <= 0 or nd > 18:
+                            good = False
+                            break
+                        if (buf[U(q)] == 101 or buf[U(q)] == 69):
+                            q += 1
+                            eneg = False
+                            if (buf[U(q)] == 45 or buf[U(q)] == 43):
+                                eneg = buf[U(q)] == 45
+                                q += 1
+                            ex = 0
+                            xs = q
+                            while U(buf[U(q)]) - U(48) <= U(9) and q - xs < 4:
+                                ex = ex * 10 + np.int64(buf[U(q)] - 48)
+                                q += 1
+                            if q == xs or q - xs > 3:
+                                good = False
+                                break
+                            e10 += -ex if eneg else ex
+                        if mant > _TWO53 or e10 < -22 or e10 > 22 or not _ENDS[buf[U(q)]]:
+                            good = False
+                            break
+                        x = np.float64(mant)
+                        x = x * _POW10[U(e10)] if e10 >= 0 else x / _POW10[U(-e10)]
+                        v_f[U(d), U(nv)] = -x if neg else x
+                    if good:
+                        while _SEPS[buf[U(q)]]:
+                            q += 1
+                        good = buf[U(q)] == 10
+                else:
+                    good = False
+            if good:
+                v_i[U(nv)] = vst
+                vscr[U(0), U(nv)] = vid
+                vscr[U(1), U(nv)] = pos
+                vscr[U(2), U(nv)] = a_in
+                vscr[U(3), U(nv)] = nin
+                nv += 1
+                pos = q + 1
+                continue
+            nin = a_in
         code = 0
         errpos = 0
         ea = 0
