@@ -148,7 +148,10 @@ def mutate(text: str, rng: random.Random, n_ops: int | None = None) -> str:
 
 
 def _inside_comment(text: str, pos: int) -> bool:
-    return text.rfind("<!--", 0, pos) > text.rfind("-->", 0, pos)
+    # XML 1.0 sec. 2.5: a comment ends at the first '-->' after its '<!--' (in '<!-->' the
+    # '-->' overlaps the opening and does not close it)
+    o = text.rfind("<!--", 0, pos)
+    return o >= 0 and text.find("-->", o + 4, pos) < 0
 
 
 def _records(arrays: list[ak.Array]) -> list[str]:

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import subprocess
 import sys
 
@@ -110,12 +111,74 @@ def test_skip_bad_keeps_the_events_of_a_unit_that_fails_late(tmp_path, dy_file):
     path = tmp_path / "cut.lhe"
     path.write_bytes(cut)
     complete = cut.count(b"</event>")
+    line = cut[: cut.rindex(b"<event>")].count(b"\n") + 1
     with pytest.raises(EvtkinError, match="cut short"):
         run(small([path]), step_size=100, jobs=1)
-    res = run(small([path]), step_size=100, jobs=1, skip_bad=True)
+    with pytest.warns(LHEWarning, match=rf"line {line}: the file is cut short"):
+        res = run(small([path]), step_size=100, jobs=1, skip_bad=True)
     (rec,) = res.provenance["skipped"]
     assert "cut short" in rec["error"]
-    # whole chunks of 100 events before the failure are kept, and listed as kept
+    # every complete event is kept (also those of the chunk the cut falls in), and listed
     kept = res.samples["dy"].cutflow[0]["n_raw"]
-    assert kept == rec["events_kept"] == complete // 100 * 100
-    assert kept >= 900
+    assert kept == rec["events_kept"] == complete
+    assert complete % 100  # the cut falls inside a chunk of 100
+    (damage,) = rec["damaged"]
+    assert f"line {line}:" in damage
+
+
+def _damage_events(text: str, which: list[int]) -> str:
+    """``text`` with the event lines of events number ``which`` (0-based) made malformed."""
+    starts = [m.start() for m in re.finditer("<event>", text)]
+    out = []
+    last = 0
+    for k in which:
+        i = text.index("\n", starts[k]) + 1  # the event line
+        out.append(text[last:i] + "x")
+        last = i
+    return "".join(out) + text[last:]
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_skip_bad_keeps_every_intact_event_of_a_damaged_unit(tmp_path, dy_file, jobs):  # noqa: F811
+    import gzip
+
+    text = gzip.decompress(dy_file.read_bytes()).decode()
+    n = text.count("</event>")
+    path = tmp_path / "damaged.lhe"
+    path.write_text(_damage_events(text, [250, 700]))
+    lines = [line_no for line_no, line in enumerate(path.read_text().splitlines(), 1)
+             if line.startswith("x")]
+    with pytest.warns(LHEWarning, match=r"skipped 2 damaged part") as rec_w:
+        res = run(small([path]), step_size=100, jobs=jobs, skip_bad=True, unit_bytes=None)
+    # once, in this process, whatever process read the unit
+    assert len([w for w in rec_w if issubclass(w.category, LHEWarning)]) == 1
+    (rec,) = res.provenance["skipped"]
+    assert f"line {lines[0]}:" in rec["error"]  # the strict reading stopped at the first
+    # the events before, between and after the two damaged ones are all analysed
+    assert res.samples["dy"].cutflow[0]["n_raw"] == rec["events_kept"] == n - 2
+    (damage,) = rec["damaged"]
+    assert f"line(s) {lines[0]}, {lines[1]};" in damage
+    assert res.provenance["read_warnings"] == [damage]
+    # the same numbers as a lenient reading of the whole file
+    with pytest.warns(LHEWarning):
+        lenient = run(small([path]), step_size=100, jobs=1, lenient=True)
+    assert lenient.samples["dy"].cutflow == res.samples["dy"].cutflow
+    assert lenient.provenance["skipped"] == []
+
+
+def test_lenient_warnings_of_worker_processes_reach_the_caller(tmp_path, dy_file):  # noqa: F811
+    import gzip
+
+    text = gzip.decompress(dy_file.read_bytes()).decode()
+    path = tmp_path / "damaged.lhe"
+    path.write_text(_damage_events(text, [10]))
+    line = next(i for i, x in enumerate(path.read_text().splitlines(), 1) if x.startswith("x"))
+    # two units in two worker processes: the damaged one warns in its worker
+    size = path.stat().st_size
+    with pytest.warns(LHEWarning, match=rf"skipped 1 damaged part.* line\(s\) {line};") as rec:
+        res = run(small([path]), lenient=True, jobs=2, unit_bytes=size // 2 + 1)
+    assert res.provenance["execution"]["units"] == 2
+    assert len([w for w in rec if issubclass(w.category, LHEWarning)]) == 1
+    (msg,) = res.provenance["read_warnings"]
+    assert f"line(s) {line};" in msg
+    assert res.samples["dy"].cutflow[0]["n_raw"] == text.count("</event>") - 1

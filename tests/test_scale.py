@@ -15,6 +15,7 @@ import pytest
 
 from evtkin.config import load_config
 from evtkin.errors import ConfigError
+from evtkin.io.lhe import LHEWarning
 from evtkin.run.executors import (
     DaskExecutor,
     ProcessExecutor,
@@ -223,8 +224,9 @@ def test_skip_bad_lists_what_was_skipped(files, tmp_path, sample):
     broken_gz.write_bytes(good_gz.read_bytes()[: good_gz.stat().st_size // 2])  # cut short
     out = tmp_path / "out"
     size = bad.stat().st_size
-    res = run(config([files[0], bad, broken_gz]), unit_bytes=size // 2, skip_bad=True,
-              out=out)
+    with pytest.warns(LHEWarning) as caught:
+        res = run(config([files[0], bad, broken_gz]), unit_bytes=size // 2, skip_bad=True,
+                  out=out)
     skipped = res.provenance["skipped"]
     assert {s["path"] for s in skipped} == {str(bad), str(broken_gz)}
     bad_parts = [s for s in skipped if s["path"] == str(bad)]
@@ -232,11 +234,17 @@ def test_skip_bad_lists_what_was_skipped(files, tmp_path, sample):
     assert bad_parts[0]["part"] == 0
     assert bad_parts[0]["byte_range"]
     assert all(s["error"] for s in skipped)
-    # the good part of the corrupt file and the good file were read; nothing else
+    # the failing units were read again leniently: every intact event is kept, and what
+    # was left out is named (the damaged event of the corrupt file, the cut of the gzip)
+    assert "skipped 1 damaged part" in bad_parts[0]["damaged"][0]
+    (gz,) = [s for s in skipped if s["path"] == str(broken_gz)]
+    assert "cut short" in gz["damaged"][0]
+    assert {str(w.message) for w in caught} == {s["damaged"][0] for s in skipped}
     inputs = {i["path"]: i["events"] for i in res.provenance["inputs"]}
     assert inputs[str(files[0])] == N_EVENTS // 3
-    assert 0 < inputs[str(bad)] < N_EVENTS // 3
-    assert str(broken_gz) not in inputs
+    assert inputs[str(bad)] == N_EVENTS // 3 - 1
+    assert inputs[str(broken_gz)] == gz["events_kept"]
+    assert 0 < gz["events_kept"] < 200
     # written records list the skipped units too
     prov = json.loads((out / "provenance.json").read_text())
     assert {s["path"] for s in prov["skipped"]} == {str(bad), str(broken_gz)}

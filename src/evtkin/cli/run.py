@@ -132,8 +132,10 @@ def main(args: argparse.Namespace) -> int:
         if rec.get("byte_range"):
             where += f" (bytes {rec['byte_range'][0]}-{rec['byte_range'][1]})"
         kept = rec.get("events_kept") or 0
-        note = f" ({kept} events read before the failure are kept)" if kept else ""
+        note = f" ({kept} complete events of this unit are kept)" if kept else ""
         print(f"  skipped: {where}: {rec['error']}{note}", file=sys.stderr)
+        for damage in rec.get("damaged") or []:  # what a lenient second reading left out
+            print(f"    read again leniently: {damage}", file=sys.stderr)
     if skipped:
         print(f"warning: {len(skipped)} work unit(s) skipped (--skip-bad); they are listed in "
               "provenance.json and results.json", file=sys.stderr)

@@ -33,6 +33,7 @@ import signal
 import threading
 import time
 import uuid
+import warnings
 from collections.abc import Callable, Collection, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol
@@ -54,6 +55,7 @@ from evtkin.run.units import (
     WorkUnit,
     make_units,
     process_unit,
+    reader_warnings,
     sha256_of,
 )
 
@@ -690,8 +692,11 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
                         peak[oc.pid] = max(peak.get(oc.pid, 0.0), oc.peak_rss_mb)
                     if oc.error is not None and skip_bad and not oc.fatal:
                         kept = oc.result.n_events() if oc.result is not None else 0
+                        # what a lenient second reading of the unit skipped (lines, counts)
+                        damaged = ([m for _, m in oc.result.warnings]
+                                   if oc.result is not None else [])
                         skipped.append({**unit.describe(), "error": oc.error,
-                                        "events_kept": kept})
+                                        "events_kept": kept, "damaged": damaged})
                         if oc.result is not None:  # the events read before the failure
                             results[oc.index] = oc.result
                         continue
@@ -706,6 +711,10 @@ def execute(plan: Plan, executor: Executor | None = None, *, skip_bad: bool = Fa
     for rec in partial.files.values():
         if rec.sha256 is None and rec.path in sums:
             rec.sha256 = sums[rec.path]
+    # the readers' warnings, kept by the units wherever they ran: shown here, once each
+    categories = reader_warnings()
+    for name, message in dict.fromkeys(partial.warnings):
+        warnings.warn(message, categories.get(name, UserWarning), stacklevel=2)
     skipped.sort(key=lambda r: (r["sample"], r["file_index"], r["part"]))
     return Execution(partial, list(units), skipped, record, time.perf_counter() - t0, peak,
                      cpu)

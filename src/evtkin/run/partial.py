@@ -105,6 +105,10 @@ class PartialResult:
     totals: dict[GroupKey, ProcessTotals] = field(default_factory=dict)
     files: dict[tuple[str, int], FileRecord] = field(default_factory=dict)
     seconds: dict[str, float] = field(default_factory=dict)  # time per stage (read, select, fill)
+    #: the readers' warnings while these units ran, ``(category name, message)`` in unit
+    #: order (e.g. ``("LHEWarning", "...: skipped 2 damaged part(s) ... at line(s) ...")``):
+    #: they travel back from worker processes with the result
+    warnings: list[tuple[str, str]] = field(default_factory=list)
 
     def merge(self, other: PartialResult) -> PartialResult:
         """A new result holding both (associative; neither input is modified)."""
@@ -114,6 +118,7 @@ class PartialResult:
             totals=_merge_dicts(self.totals, other.totals),
             files=_merge_dicts(self.files, other.files),
             seconds=_merge_dicts(self.seconds, other.seconds),
+            warnings=[*self.warnings, *other.warnings],
         )
 
     def __add__(self, other: PartialResult) -> PartialResult:

@@ -352,6 +352,8 @@ def run(
         provenance["execution"] = execution.record()
         provenance["skipped"] = list(execution.skipped)
         provenance["config_warnings"] = list(cfg.warnings)
+        # the readers' warnings (lenient reading: the damaged parts skipped, with lines)
+        provenance["read_warnings"] = list(dict.fromkeys(m for _, m in partial.warnings))
         if part is not None:
             provenance["part"] = {"index": part[0], "of": part[1]}
         result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)

@@ -20,6 +20,7 @@ import dataclasses
 import math
 import os
 import time
+import warnings
 from collections.abc import Callable
 from typing import Any
 
@@ -29,6 +30,7 @@ import numpy as np
 from evtkin.errors import ConfigError, EvtkinError
 from evtkin.run.checksums import sha256_of
 from evtkin.run.inputs import input_source
+from evtkin.run.inputs.base import InputSource, limit_events
 from evtkin.run.inputs.lhe import lhe_byte_ranges
 from evtkin.run.partial import FileRecord, PartialResult
 from evtkin.run.plan import Plan, analyse_chunk
@@ -42,10 +44,20 @@ __all__ = [
     "lhe_byte_ranges",
     "make_units",
     "process_unit",
+    "reader_warnings",
     "sha256_of",
 ]
 
 Progress = Callable[[int], None]
+
+
+def reader_warnings() -> dict[str, type[Warning]]:
+    """The readers' warning classes by name: those a unit keeps with its result
+    (``PartialResult.warnings``) instead of showing them where it runs."""
+    from evtkin.io.hepmc import HepMCWarning
+    from evtkin.io.lhe import LHEWarning
+
+    return {"LHEWarning": LHEWarning, "HepMCWarning": HepMCWarning}
 
 #: automatic splitting never makes byte-range units smaller than this
 MIN_UNIT_BYTES = 32 << 20
@@ -123,20 +135,45 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     With ``truth_files`` the response matrices of the histograms marked ``response = true``
     are filled as well.
     """
-    from evtkin.run.chunkfill import fill_chunk
-
     sample = unit.sample
     spec = plan.config.samples[sample]
     responses = response_names(plan, sample) if spec.truth_files else []
-    reading = input_source(spec.format).open(plan, unit, read_threads=read_threads,
-                                             with_truth=bool(responses))
+    source = input_source(spec.format)
     result = PartialResult()
+    kept = reader_warnings()
+    with warnings.catch_warnings(record=True) as caught:
+        # the readers' warnings are kept with the result: from a worker process they
+        # reach the caller that way (execute() shows them there, once)
+        for category in kept.values():
+            warnings.simplefilter("always", category)
+        try:
+            return _process_unit(plan, unit, source, result, responses, progress,
+                                 read_threads)
+        finally:
+            for w in caught:
+                name = w.category.__name__
+                if kept.get(name) is w.category:
+                    result.warnings.append((name, str(w.message)))
+                else:  # anything else is shown as it would have been
+                    warnings.warn_explicit(w.message, w.category, w.filename, w.lineno,
+                                           source=w.source)
+
+
+def _process_unit(plan: Plan, unit: WorkUnit, source: InputSource, result: PartialResult,
+                  responses: list[str], progress: Progress | None,
+                  read_threads: int | None) -> PartialResult:
+    from evtkin.run.chunkfill import fill_chunk
+
+    sample = unit.sample
+    reading = source.open(plan, unit, read_threads=read_threads, with_truth=bool(responses))
     seconds = {"read": 0.0, "select": 0.0, "fill": 0.0}
     variations: tuple[str, ...] | None = None
     n_total = 0
     n_chunks = 0
     t0 = time.perf_counter()
     failure: EvtkinError | None = None
+    #: --skip-bad: the error after which the unit was read again leniently
+    first_failure: EvtkinError | None = None
     chunks = reading.chunks()
     try:
         while True:
@@ -147,6 +184,21 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
             except EvtkinError as exc:
                 if not plan.keep_partial:
                     raise
+                if first_failure is None and not plan.lenient and source.reads_leniently:
+                    # --skip-bad: read the unit again, leniently (damaged events skipped
+                    # with a warning naming their lines), after the events analysed so
+                    # far (the lenient reading delivers the same ones before the damage)
+                    first_failure = exc
+                    reading.close()
+                    try:
+                        reading = source.open(dataclasses.replace(plan, lenient=True), unit,
+                                              read_threads=read_threads,
+                                              with_truth=bool(responses))
+                    except EvtkinError:
+                        failure = exc
+                        break
+                    chunks = limit_events(reading.chunks(), n_total, None)
+                    continue
                 failure = exc  # keep the chunks analysed so far (--skip-bad)
                 break
             if chunk is None:
@@ -196,6 +248,7 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
         reading.file_info(n_total),
     )
     result.seconds = seconds
+    failure = first_failure or failure
     if failure is not None:
         if n_total == 0:
             raise failure  # nothing read: the unit is skipped as a whole

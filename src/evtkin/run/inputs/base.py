@@ -69,6 +69,10 @@ class InputSource(ABC):
 
     #: the value of ``[samples.NAME] format``
     format: ClassVar[str]
+    #: whether :meth:`open` reads leniently with ``plan.lenient`` (damaged events skipped
+    #: with a warning naming their lines); ``--skip-bad`` then reads a unit that failed
+    #: again leniently, so that it keeps every intact event
+    reads_leniently: ClassVar[bool] = False
 
     def work_units(self, spec: SampleSpec, file_index: int, path: str, size: int, parts: int,
                    max_events: int | None) -> list[WorkUnit]:

@@ -150,6 +150,7 @@ class HepMCSource(InputSource):
     """HepMC ASCII event files (plain or compressed)."""
 
     format = "hepmc"
+    reads_leniently = True
 
     def work_units(self, spec: SampleSpec, file_index: int, path: str, size: int, parts: int,
                    max_events: int | None) -> list[WorkUnit]:

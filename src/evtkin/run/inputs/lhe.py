@@ -153,6 +153,7 @@ class LHESource(InputSource):
     """Les Houches event files (plain or compressed)."""
 
     format = "lhe"
+    reads_leniently = True
 
     def work_units(self, spec: SampleSpec, file_index: int, path: str, size: int, parts: int,
                    max_events: int | None) -> list[WorkUnit]:
