@@ -307,3 +307,30 @@ def test_byte_ranges_skip_an_event_inside_a_comment_opened_by_a_bare_arrow(tmp_p
             got = [w for rng in ((0, cut + shift), (cut + shift, size))
                    for arr in evtkin.read_lhe(path, byte_range=rng) for w in ak.to_list(arr.weight)]
             assert got == [1.0, 3.0], (cut, shift)
+
+
+@pytest.mark.parametrize("threads", [0, 2])
+@pytest.mark.parametrize("damage", ["number", "cut"])
+def test_strict_read_yields_every_complete_event_before_raising(tmp_path, scanner, threads,
+                                                                 damage):
+    # the error comes after the events before the damage, also those of the chunk (and
+    # buffer) the damage falls in
+    body = "".join(ev(k) for k in range(1, 41))
+    text = minimal_file(body, head=HEAD)
+    if damage == "number":
+        text = text.replace(" 2 27 27.0 ", " 2 27 2x7.0 ", 1)
+        line = line_of(text, " 2 27 2x7.0 ")
+    else:
+        text = text[: text.index("<event>\n 2 27 ") + 40]
+        line = line_of(text, "<event>\n 2 27 ")
+    path = tmp_path / "damaged.lhe"
+    path.write_text(text)
+    got: list[float] = []
+
+    def read_all() -> None:
+        for arr in evtkin.read_lhe(path, step_size=10, threads=threads):
+            got.extend(ak.to_list(arr.weight))
+
+    with pytest.raises(evtkin.LHEError, match=f"line {line}:"):
+        read_all()
+    assert got == [float(k) for k in range(1, 27)]

@@ -73,6 +73,10 @@ def test_incomplete_folder_is_refused_unless_allowed(tmp_path, dy_file):  # noqa
         compare_results([out], out=tmp_path / "cmp")
     assert evtkin.load_results(out, allow_incomplete=True)
     assert main(["compare", str(out), "--out", str(tmp_path / "cmp2"), "--jobs", "1"]) == 1
+    assert main(["plot", str(out), "--jobs", "1", "--formats", "png"]) == 1
+    assert not (out / "plots").exists()
+    assert main(["plot", str(out), "--jobs", "1", "--formats", "png", "--allow-incomplete"]) == 0
+    assert list((out / "plots").glob("*.png"))
 
 
 @pytest.mark.parametrize(("section", "a", "b"), [("samples", "x y", "x_y"),

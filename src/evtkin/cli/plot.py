@@ -84,6 +84,9 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
                       help="print the histogram's title in the figure (default: no)")
     p.add_argument("--jobs", "-j", type=_positive, metavar="N",
                    help="processes drawing the plots (default: every available core)")
+    p.add_argument("--allow-incomplete", action="store_true",
+                   help="plot a folder marked INCOMPLETE too (a run was interrupted while "
+                   "writing it; default: refuse it)")
     p.set_defaults(func=main)
     return p
 
@@ -111,7 +114,7 @@ def main(args: argparse.Namespace) -> int:
     from evtkin.output.plots import write_plots
     from evtkin.output.tables import read_results
 
-    results = read_results(args.folder)
+    results = read_results(args.folder, allow_incomplete=args.allow_incomplete)
     overrides = overrides_from(args)
     if args.measured:
         measured = dict(results.meta.get("measured") or {})

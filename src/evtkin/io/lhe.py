@@ -105,10 +105,12 @@ def scanner_kind() -> str:
 class _ScanFailure(Exception):
     """A malformed event; ``pos`` is the absolute byte offset in the decompressed stream."""
 
-    def __init__(self, pos: int, message: str) -> None:
+    def __init__(self, pos: int, message: str, scratch: _Scratch | None = None) -> None:
         super().__init__(message)
         self.pos = pos
         self.message = message
+        #: the parse whose whole events before the damage are in its columns, if any
+        self.scratch = scratch
 
 
 def _token_at(buf: np.ndarray, pos: int) -> str:
@@ -321,7 +323,12 @@ class _Scratch:
                     self.ids,
                 )  # fmt: skip
                 if not lenient:
-                    raise _ScanFailure(base + epos, msg)
+                    # the whole events before the damage stay in the columns (the counts
+                    # of the last commit point), for the caller to deliver before the error
+                    self._fix_slow(buf, base, int(st[c.ST_NSLOW]))
+                    self.n_ev = int(st[c.ST_EV])
+                    self.n_p = int(st[c.ST_NP])
+                    raise _ScanFailure(base + epos, msg, self)
                 # the counts in st are those of the last commit point; go on from the
                 # next event (group) start after the damaged part
                 self.skips.append((base + epos, msg))
@@ -819,7 +826,8 @@ def read_lhe(
     every event once. There, ``group`` counts from the first event of the range.
 
     Raises :class:`~evtkin.errors.LHEError` naming the file and 1-based line for
-    malformed input. A file cut short (inside an event, or before
+    malformed input, once every complete event before it was yielded (the last chunk
+    before the error may be short). A file cut short (inside an event, or before
     ``</LesHouchesEvents>``) raises after the complete events were yielded when
     ``strict`` is true; with ``strict=False`` it issues an :class:`LHEWarning` instead.
     A valid file without events yields nothing.
@@ -930,6 +938,41 @@ def _iterate(
     eof = False
     skipped: list[tuple[int, str]] = []
     damage_reported = False
+    #: strict: the error raised once the complete events before it were yielded
+    error: str | None = None
+
+    def problem(msg: str) -> None:
+        nonlocal error
+        if strict:
+            error = error or msg + "; use strict=False to read the complete events"
+        else:
+            _problem(msg, strict)
+
+    def hand(s: _Scratch) -> Iterator[ak.Array]:
+        """The events of a parse, handed to chunks of exactly ``step`` (groups kept whole)."""
+        nonlocal chunk, total, ratio, per_event
+        a = 0
+        if s.n_ev:
+            ratio = max(ratio, s.n_p / s.n_ev)
+            per_event = 1.15 * ratio
+        while a < s.n_ev:
+            if chunk is None:
+                chunk = _Chunk(step, int(step * per_event) + 64, names, groups, slabs)
+            b = min(a + step - chunk.n, s.n_ev)
+            if groups and b < s.n_ev:
+                # never split a group: extend to the next group start
+                g = s.group[b : s.n_ev]
+                starts = np.flatnonzero(g == np.arange(b, s.n_ev))
+                b = b + int(starts[0]) if starts.size else s.n_ev
+            chunk.add(s, a, b, n_seen)
+            a = b
+            if chunk.n >= step:
+                out = chunk.to_awkward()
+                total += chunk.n
+                chunk = None
+                yield out
+                del out  # the caller may have let go of it: its memory can be reused
+
     try:
         reader_done = False
         carry: tuple[int, np.ndarray] | None = None
@@ -954,33 +997,16 @@ def _iterate(
                 else:
                     s = fut.result()
             except _ScanFailure as exc:
-                raise LHEError(f"{name}: line {_line_at(source, exc.pos)}: {exc.message}") from None
+                # the complete events before the damage first, then the error
+                error = f"{name}: line {_line_at(source, exc.pos)}: {exc.message}"
+                if exc.scratch is not None:
+                    yield from hand(exc.scratch)
+                break
             saw_end = saw_end or s.saw_end
             stopped = stopped or s.stopped
             skipped.extend(s.skips)
             eof = eof or item_eof
-            # hand the events to chunks of exactly ``step`` (groups kept whole)
-            a = 0
-            if s.n_ev:
-                ratio = max(ratio, s.n_p / s.n_ev)
-                per_event = 1.15 * ratio
-            while a < s.n_ev:
-                if chunk is None:
-                    chunk = _Chunk(step, int(step * per_event) + 64, names, groups, slabs)
-                b = min(a + step - chunk.n, s.n_ev)
-                if groups and b < s.n_ev:
-                    # never split a group: extend to the next group start
-                    g = s.group[b : s.n_ev]
-                    starts = np.flatnonzero(g == np.arange(b, s.n_ev))
-                    b = b + int(starts[0]) if starts.size else s.n_ev
-                chunk.add(s, a, b, n_seen)
-                a = b
-                if chunk.n >= step:
-                    out = chunk.to_awkward()
-                    total += chunk.n
-                    chunk = None
-                    yield out
-                    del out  # the caller may have let go of it: its memory can be reused
+            yield from hand(s)
             n_seen += s.n_ev
             status, resume = s.status, s.resume
             free.append(s)
@@ -1009,24 +1035,26 @@ def _iterate(
                         f"{name}: the file ends inside a tag after {n_before} complete events "
                         "(cut short?)"
                     )
-                _problem(msg, strict)
+                problem(msg)
                 saw_end = True  # reported already
             reader.recycle(raw)
-        if skipped:
-            _warn_skipped(source, name, skipped)
-        if reader.damage is not None and not damage_reported:
-            _problem(f"{reader.damage}; {n_seen} complete events precede", strict)
-            saw_end = True
-        if not saw_end and not stopped and eof and need_end:
-            _problem(
-                f"{name}: the file ends without </LesHouchesEvents> after "
-                f"{n_seen} complete events (cut short?)",
-                strict,
-            )
+        if error is None:
+            if skipped:
+                _warn_skipped(source, name, skipped)
+            if reader.damage is not None and not damage_reported:
+                problem(f"{reader.damage}; {n_seen} complete events precede")
+                saw_end = True
+            if not saw_end and not stopped and eof and need_end:
+                problem(
+                    f"{name}: the file ends without </LesHouchesEvents> after "
+                    f"{n_seen} complete events (cut short?)"
+                )
         if chunk is not None and chunk.n:
             out = chunk.to_awkward()
             chunk = None
             yield out
+        if error is not None:
+            raise LHEError(error)
     finally:
         reader.close()
         for _, fut in pending:
