@@ -81,3 +81,23 @@ def test_plot_config_errors_name_the_key_and_line(tmp_path: Path, extra: str,
                                                   message: str) -> None:
     with pytest.raises(ConfigError, match=message):
         _load(tmp_path, extra)
+
+
+
+def _sqrt_s(tmp_path: Path, text: str) -> object:
+    from evtkin.run.result import plot_meta
+
+    p = tmp_path / "s.toml"
+    p.write_text(text, encoding="utf-8")
+    return plot_meta(load_config(p, base_dir=REPO)).get("plot", {}).get("sqrt_s_gev")
+
+
+def test_sqrt_s_from_the_beams_of_lhe_and_hepmc_files(tmp_path: Path) -> None:
+    # LHE <init>: EBMUP 6500 + 6500 GeV; the HepMC shower sample's first event: two 6500 GeV
+    # protons head on (status 4); √s = E1 + E2 for head-on beams (common practice)
+    assert _sqrt_s(tmp_path, BASE) == pytest.approx(13000.0)
+    hepmc = BASE.replace('files = ["samples/toy_drellyan.lhe.gz"]',
+                         'files = ["samples/toy_drellyan_shower.hepmc.gz"]')
+    hepmc = hepmc.replace('[samples.ttbar]\nfiles = ["samples/toy_ttbar.lhe.gz"]\n', "")
+    assert "lhe" not in hepmc
+    assert _sqrt_s(tmp_path, hepmc) == pytest.approx(13000.0, rel=1e-9)

@@ -146,6 +146,15 @@ def test_data_flag_in_results_cutflows_and_plots(files, tmp_path):
     assert kinds == {"dy": "line", "observed": "points"}
     pts = next(c for c in curves if c.name == "observed")
     np.testing.assert_array_equal(pts.errors, np.sqrt(np.histogram(m, bins=EDGES)[0]))
+    # the HTML report: the data sample's events counted, its cutflow N ± √N; the simulated
+    # sample's cutflow with the expected events at the luminosity
+    from evtkin.output.report import render_run_report
+
+    page = render_run_report(back, out)
+    assert "data (counted events)" in page
+    assert f"<td>{N}</td>" in page
+    assert "± √N" in page
+    assert "expected events (2 fb⁻¹)" in page
     # above the frame: √s from the LHE beams (6500 + 6500 GeV head on: √s = 13 TeV, common
     # practice) and, for expected events, the luminosity
     assert raw["plot"]["sqrt_s_gev"] == pytest.approx(13000.0)

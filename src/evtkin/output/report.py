@@ -275,14 +275,16 @@ def render_run_report(
         x = s.xsec or {}
         sig = x.get("sigma_pb")
         sig_txt = "–" if sig is None else f"{_num(sig)} ± {_num(x.get('sigma_err_pb'), '.2g')}"
+        n_events = x.get("n_events")
         if getattr(s, "data", False):
             sig_txt = "data (counted events)"
+            n_events = s.cutflow[0].get("n_raw") if s.cutflow else None
         rows.append(
             [
                 _e(name),
                 _e(s.label),
                 sig_txt,
-                _num(x.get("n_events")),
+                _num(n_events),
                 _num(x.get("n_eff")),
                 _num(s.luminosity_fb),
                 _num(len(s.histograms)),

@@ -165,18 +165,50 @@ def plot_meta(cfg: Any) -> dict[str, Any]:
 
 
 def _sqrt_s_of(cfg: Any) -> float | None:
-    """√s of the LHE samples' beams, when every sample that says agrees (else ``None``)."""
+    """√s of the samples' beams (LHE: the ``<init>`` beam energies; HepMC: the invariant mass
+    of the first event's beam particles, status 4), when every sample that says agrees (else
+    ``None``)."""
     from evtkin.io.lhe_header import lhe_info
 
     values = []
     for s in cfg.samples.values():
-        if s.format != "lhe" or not s.files:
+        if not s.files:
             continue
         try:
-            values.append(lhe_info(s.files[0]).sqrt_s)
+            if s.format == "lhe":
+                values.append(lhe_info(s.files[0]).sqrt_s)
+            elif s.format == "hepmc":
+                v = _hepmc_sqrt_s(s.files[0])
+                if v is not None:
+                    values.append(v)
         except (OSError, ValueError):
             continue
     if values and max(values) - min(values) <= 1e-6 * max(values):
         return float(values[0])
     return None
+
+
+def _hepmc_sqrt_s(path: Path) -> float | None:
+    """√s = the mass of the two beam particles (status 4) of the file's first event."""
+    import awkward as ak
+    import numpy as np
+
+    from evtkin.io.hepmc import read_hepmc
+
+    events = read_hepmc(path, step_size=1)
+    try:
+        first = next(iter(events), None)
+    finally:
+        close = getattr(events, "close", None)
+        if close is not None:
+            close()
+    if first is None:
+        return None
+    p = first["particles"][0]
+    beams = p[p["status"] == 4]
+    if len(beams) != 2:
+        return None
+    e, px, py, pz = (float(ak.sum(beams[k])) for k in ("energy", "px", "py", "pz"))
+    m2 = e * e - px * px - py * py - pz * pz
+    return float(np.sqrt(m2)) if m2 > 0 else None
 
