@@ -161,7 +161,7 @@ def render_compare_report(cs: Any, *, title: str = "evtkin comparison") -> str:
     for _entry, c in cs.comparisons():  # the rows' order
         ids = [note_ids.setdefault(n, len(note_ids) + 1)
                for n in dict.fromkeys((*c.chi2.notes, *c.notes))]
-        row_notes.append(ids)
+        row_notes.append(sorted(ids))
     body.append("<h2>Summary, smallest p-value first</h2>")
     body.append(
         _table(
