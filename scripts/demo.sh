@@ -32,6 +32,18 @@ run configs/ttbar_regions.toml ttbar_regions samples/toy_ttbar_reco.root
 run configs/dilepton_stack.toml dilepton_stack \
     samples/toy_ttbar.lhe.gz samples/toy_drellyan.lhe.gz samples/toy_measured_mll.csv
 
+# Particle level: the lepton+jets analysis on the toy shower sample (the first 250 events of
+# toy_ttbar.lhe.gz, showered) with dressed leptons, ghost-b-labelled jets and invisible missing
+# pT; its truth_files give particle ↔ parton response matrices for m(tt̄) and the top pT.
+run configs/ttbar_particle_level.toml ttbar_particle_level \
+    samples/toy_ttbar_shower.hepmc.gz samples/toy_ttbar.lhe.gz
+# the parton-level analysis of the same 250 events, for the comparison below
+if [ -f "$OUT/ttbar_particle_level/results.json" ]; then
+    echo "== parton level, same events: evtkin run configs/ttbar_lepton_jets.toml --max-events 250"
+    "$PY" -m evtkin run configs/ttbar_lepton_jets.toml --max-events 250 \
+        --out "$OUT/ttbar_parton_level_250"
+fi
+
 # Re-draw from results.json without running again: the leading-lepton pT on a linear scale,
 # two bins merged (exact for every normalisation), as PNG and SVG, into another folder.
 if [ -f "$OUT/dilepton_stack/results.json" ]; then
@@ -48,6 +60,15 @@ if [ -f "$OUT/ttbar_truth/results.json" ]; then
     "$PY" -m evtkin compare "$OUT/ttbar_truth" --shape-only --pulls --out "$OUT/compare_ttbar"
 fi
 
+# Particle level against parton level, the same events: m(tt̄), top pT, lepton pT. The two
+# levels share their events, so the χ² p-values (made for independent samples) are not
+# meaningful here; the ratios show what the shower and the particle-level definitions change.
+if [ -f "$OUT/ttbar_parton_level_250/results.json" ]; then
+    echo "== comparison: evtkin compare parton level vs particle level (same 250 events)"
+    "$PY" -m evtkin compare "$OUT/ttbar_parton_level_250" "$OUT/ttbar_particle_level" \
+        --samples ttbar ttbar --hists m_tt top_pt lepton_pt --out "$OUT/compare_particle_parton"
+fi
+
 echo
 echo "Outputs (toy data, not a physics prediction):"
 for d in "$OUT"/*/; do
@@ -62,6 +83,11 @@ if [ -f "$OUT/compare_ttbar/summary.txt" ]; then
     echo
     echo "  $OUT/compare_ttbar/ (sorted by p-value, smallest first)"
     sed 's/^/    /' "$OUT/compare_ttbar/summary.txt"
+fi
+if [ -f "$OUT/ttbar_particle_level/responses.json" ]; then
+    echo
+    echo "  particle ↔ parton response matrices: $OUT/ttbar_particle_level/responses.json,"
+    echo "    plots/response_ttbar_m_tt_coarse.png, plots/response_ttbar_top_pt_coarse.png"
 fi
 for r in "$OUT"/*/report.html; do
     [ -f "$r" ] && echo "HTML report: $(cd "$(dirname "$r")" && pwd)/report.html"

@@ -65,7 +65,16 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers:
     if any(s.responses for s in result.samples.values()):
         from evtkin.output.responses import write_responses
 
-        write_responses(out, {name: s.responses for name, s in result.samples.items()})
+        found = {name: s.responses for name, s in result.samples.items()}
+        write_responses(out, found)
+        if "plots" in formats:
+            from evtkin.output.responses import plot_responses
+
+            levels = {name: ("parton level", "particle level")
+                      for name, spec in plan.config.samples.items() if spec.format == "hepmc"}
+            plot_responses(out, {k: v for k, v in found.items() if v}, levels=levels,
+                           formats=plan.config.output.plot_formats,
+                           note=str(results.meta.get("note", "")))
     if "report" in formats:  # last: it reads the folder back (and embeds the plots written above)
         from evtkin.output.report import write_run_report
 
