@@ -2,9 +2,10 @@
 
 Importing this module reads a two-event LHE text through :func:`evtkin.io.lhe.read_lhe`
 and fills a few histograms (regular and variable axes, 1-D and 2-D, with and without row
-maps), so that numba's start-up and the loading of the cached machine code (several seconds
-for the byte scanner) happen once in the forkserver process. Every worker forked from it
-starts with the kernels ready. Failures are ignored: a cold worker is only slower.
+maps), then one showered HepMC event through :func:`evtkin.io.hepmc.read_hepmc` and the
+particle-level recipes, so that numba's start-up and the loading of the cached machine code
+(several seconds for the byte scanners) happen once in the forkserver process. Every worker
+forked from it starts with the kernels ready. Failures are ignored: a cold worker is only slower.
 """
 
 from __future__ import annotations
@@ -13,7 +14,7 @@ import contextlib
 import os
 import tempfile
 
-__all__ = ["warm"]
+__all__ = ["warm", "warm_particle_level"]
 
 _TINY = b"""<LesHouchesEvents version="3.0">
 <header>
@@ -39,6 +40,46 @@ _TINY = b"""<LesHouchesEvents version="3.0">
 </event>
 </LesHouchesEvents>
 """
+
+
+#: one showered event (beams, a muon with a photon, a B hadron decaying to a pion and a
+#: neutrino) for the HepMC scanner and the particle-level kernels
+_TINY_HEPMC = b"""HepMC::Version 3.02.00
+HepMC::Asciiv3-START_EVENT_LISTING
+E 1 2 7
+U GEV MM
+P 1 0 2212 0 0 6499.9999 6500 0.93827209 4
+P 2 0 2212 0 0 -6499.9999 6500 0.93827209 4
+V -1 0 [1,2]
+P 3 -1 13 30 5 3 30.6 0.105 1
+P 4 -1 22 1 0.2 0.1 1.03 0 1
+P 5 -1 511 -30 -5 2 30.9 5.279 2
+V -2 0 [5]
+P 6 -2 211 -20 -3 1 20.3 0.139 1
+P 7 -2 14 -10 -2 1 10.2 0 1
+HepMC::Asciiv3-END_EVENT_LISTING
+"""
+
+
+def warm_particle_level() -> None:
+    """Load the HepMC scanner and the particle-level kernels (decay graph, dressing, ghost
+    clustering, isolation) in this process."""
+    from evtkin.io.hepmc import read_hepmc
+    from evtkin.select import particle_level as pl
+
+    fd, path = tempfile.mkstemp(prefix="evtkin-warm-", suffix=".hepmc")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(_TINY_HEPMC)
+        for chunk in read_hepmc(path, threads=1):
+            parts = chunk["particles"]
+            leptons = pl.dressed_leptons(parts, radius=0.1)
+            ghosts = pl.ghost_candidates(parts, min_pt=5.0)
+            pl.particle_jets(parts, radius=0.4, ghosts=ghosts)
+            pl.isolation(leptons, parts, radius=0.3)
+            pl.missing_pt(parts, prompt_only=True)
+    finally:
+        os.unlink(path)
 
 
 def warm() -> None:
@@ -73,3 +114,5 @@ def warm() -> None:
 
 with contextlib.suppress(Exception):  # a cold worker is only slower
     warm()
+with contextlib.suppress(Exception):
+    warm_particle_level()

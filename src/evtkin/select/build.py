@@ -292,6 +292,22 @@ class _Showered:
             keep &= dg.has_ancestor_flat(parent, self.graph)
         return keep
 
+    def missing_pt(self, pdgids: Sequence[int], prompt: bool) -> ak.Array:
+        """The vector pT sum of the stable particles with these |PDG ids| (prompt ones only,
+        or all), as :func:`evtkin.select.particle_level.missing_pt` gives it."""
+        take = np.isin(np.abs(self.ids), np.asarray(pdgids, dtype=np.int64))
+        take &= self.status == 1
+        if prompt:
+            take &= self.prompt
+        where = np.flatnonzero(take)
+        event_of = np.repeat(np.arange(len(self.counts)), self.counts)[where]
+        sums = []
+        for f in ("px", "py"):
+            col = np.asarray(ak.to_numpy(ak.flatten(self.particles[f], axis=1)),
+                             dtype=np.float64)
+            sums.append(np.bincount(event_of, weights=col[where], minlength=len(self.counts)))
+        return ak.zip({"px": sums[0], "py": sums[1]}, with_name="Momentum2D")
+
     def members(self, objs: Any) -> np.ndarray:
         """Flat bool: the particles the objects are made of (``index``, a dressed lepton's
         ``photons``, a jet's ``constituents``)."""
@@ -388,9 +404,7 @@ def showered_objects(particles: Any, objects: Mapping[str, ObjectDefinition],
         objs = _overlap(objs, overlap)
     out = {name: ak.to_packed(o) for name, o in objs.items()}
     if missing is not None:
-        out[missing.name] = pl.missing_pt(ev.particles, pdgids=missing.pdgids,
-                                          prompt_only=missing.prompt,
-                                          graph=ev.graph if missing.prompt else None)
+        out[missing.name] = ev.missing_pt(missing.pdgids, missing.prompt)
     return out
 
 

@@ -185,9 +185,10 @@ def dressed_leptons(
     wanted = np.abs(np.array(tuple(pdgids), dtype=np.int64))
     lep, lep_off = _positions(ok & np.isin(np.abs(ids), wanted), counts)
     pho, pho_off = _positions(ok & (ids == 22), counts)
-    eta, phi = _eta_phi(px, py, pz)
-    near = _nearest_within(eta[pho], phi[pho], pho_off, eta[lep], phi[lep], lep_off,
-                           float(radius))
+    # η and φ of the leptons and photons only (a small part of the particles)
+    l_eta, l_phi = _eta_phi(px[lep], py[lep], pz[lep])
+    p_eta, p_phi = _eta_phi(px[pho], py[pho], pz[pho])
+    near = _nearest_within(p_eta, p_phi, pho_off, l_eta, l_phi, lep_off, float(radius))
     used = near >= 0
     dressed = [c[lep].copy() for c in (px, py, pz, e)]
     for col, full in zip(dressed, (px, py, pz, e), strict=True):
