@@ -256,3 +256,32 @@ def test_the_parton_level_reading_on_lhe_events_is_the_parton_config(tmp_path: P
     assert ak.to_list(plevel["jets"].btag) == ak.to_list(parton["jets"].btag)
     assert np.allclose(ak.to_numpy(plevel["met"].px), ak.to_numpy(parton["met"].px))
     assert not math.isnan(float(ak.sum(parton["met"].px)))
+
+
+def test_excluding_a_particle_collection_and_prompt_inputs(tmp_path: Path,
+                                                           shower_chunk: ak.Array) -> None:
+    """A plain particle collection (prompt photons) left out of the clustering: no jet holds
+    one of its particles; with prompt = true only prompt particles are clustered."""
+    parts = shower_chunk["particles"]
+    text = BASE.replace('exclude = ["leptons", "invisibles"]',
+                        'exclude = ["leptons", "invisibles", "photons"]') + '''
+[objects.photons]
+particles = ["photons"]
+prompt = true
+min_pt = 0.1
+'''
+    objs = _objects(text, tmp_path, parts)
+    photons, jets = objs["photons"], objs["jets"]
+    assert ak.sum(ak.num(photons)) >= 5
+    for e in range(len(parts)):
+        held = set(ak.to_list(ak.flatten(jets.constituents[e])))
+        assert not held & set(ak.to_list(photons.index[e]))
+    prompt_text = text.replace('inputs = "stable"', 'inputs = "stable"\n') \
+        .replace("[objects.jets]\n", "[objects.jets]\nprompt = true\n")
+    pjets = _objects(prompt_text, tmp_path, parts)["jets"]
+    flags = pl.prompt(parts)
+    for e in range(len(parts)):
+        held = ak.to_list(ak.flatten(pjets.constituents[e]))
+        assert all(ak.to_list(flags[e][held])) if held else True
+    # B-hadron decay products are not prompt: fewer constituents than without prompt
+    assert ak.sum(pjets.n_constituents) < ak.sum(jets.n_constituents)
