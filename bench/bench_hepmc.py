@@ -1,76 +1,57 @@
 """Benchmark of the HepMC reader against a bare line scan and a raw read of the same file,
 in one run.
 
-    python bench/bench_hepmc.py [--mb 300] [--repeat 2] [--out-dir /tmp]
+    python bench/bench_hepmc.py [--mb 300] [--repeat 3] [--out-dir /tmp] [--rss 1000,3000]
 
 Makes (once) a big Asciiv3 file by repeating the events of the shipped toy shower sample
 (samples/toy_ttbar_shower.hepmc.gz) until it holds ``--mb`` MB of text, and its gzip.
-Each measurement runs in a fresh subprocess (best of ``--repeat``), printing MB/s of
+Each measurement runs in a fresh subprocess, ``--repeat`` interleaved rounds (the
+baselines come from ``_baselines.py``, shared with bench_lhe.py), printing MB/s of
 uncompressed text and the ratio to the bare ``for line in open(path, "rb")`` scan of the
-same run: a raw ``readinto`` read of the bytes, the reader with 0, 1 and 2 parse threads,
-the reader on the gzip file, the raw gzip decompression (``isal.igzip`` ``readinto``),
-and the peak RSS of each process. Then the compiled scanners alone, on in-memory 4 MB
-pieces, one thread, CPU time: the HepMC kernel vs the LHE kernel (on the LHE toy sample's
-events repeated to the same size).
+same run (best of the rounds, and median against median): a raw ``readinto`` read of the
+bytes, the reader with 0, 1 and 2 parse threads, the reader on the gzip file, the raw gzip
+decompression (``isal.igzip`` ``readinto``), and the peak RSS of each process. Then the
+compiled scanners alone, on in-memory 4 MB pieces, one thread, CPU time, interleaved: the
+HepMC kernel vs the LHE kernel (on the LHE toy sample's events repeated to the same size).
+``--rss 1000,3000`` reads files of those sizes (MB; made in ``--out-dir`` and deleted
+afterwards) with the default options and prints their peak RSS: flat in the file size?
 """
 
 from __future__ import annotations
 
 import argparse
 import gzip
-import json
 import os
 import shutil
-import subprocess
-import sys
 import time
 from pathlib import Path
 
 import numpy as np
 
+from _baselines import CHILD_PRELUDE, interleaved, run_child
+
 ROOT = Path(__file__).resolve().parent.parent
 SAMPLE = ROOT / "samples" / "toy_ttbar_shower.hepmc.gz"
 LHE_SAMPLE = ROOT / "samples" / "toy_ttbar.lhe.gz"
 
-CHILD = r"""
-import json, resource, sys, time
-mode, path, threads = sys.argv[1], sys.argv[2], int(sys.argv[3])
-n = 0
-if mode == "reader":
-    import evtkin
-    for _ in evtkin.read_hepmc(sys.argv[4]):  # warm: cached kernel, threads
-        pass
-t0 = time.perf_counter()
-if mode == "bare":
-    for line in open(path, "rb"):
-        n += 1
-elif mode == "raw":
-    buf = bytearray(8 << 20)
-    with open(path, "rb", buffering=0) as fh:
-        while True:
-            got = fh.readinto(buf)
-            if not got:
-                break
-            n += got
-elif mode == "decompress":
-    from isal import igzip
-    buf = bytearray(8 << 20)
-    with igzip.open(path, "rb") as fh:
-        while True:
-            got = fh.readinto(buf)
-            if not got:
-                break
-            n += got
+CHILD = CHILD_PRELUDE + r"""
+mode, path, threads, tiny = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4]
+if mode in ("bare", "raw", "decompress"):
+    t0 = time.perf_counter()
+    n = baseline(mode, path)
 else:
+    import evtkin
+    for _ in evtkin.read_hepmc(tiny):  # warm: cached kernel, threads
+        pass
+    t0 = time.perf_counter()
+    n = 0
     for chunk in evtkin.read_hepmc(path, threads=None if threads < 0 else threads):
         n += len(chunk)
-dt = time.perf_counter() - t0
-rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-print(json.dumps({"seconds": dt, "n": n, "rss_mb": rss}))
+report(time.perf_counter() - t0, n)
 """
 
 
-def make_files(out_dir: Path, mb: int) -> tuple[Path, Path, Path]:
+def make_files(out_dir: Path, mb: int, with_gzip: bool = True) -> tuple[Path, Path, Path]:
     big = out_dir / f"evtkin_bench_{mb}MB.hepmc"
     gz = out_dir / f"evtkin_bench_{mb}MB.hepmc.gz"
     tiny = out_dir / "evtkin_bench_tiny.hepmc"
@@ -89,24 +70,12 @@ def make_files(out_dir: Path, mb: int) -> tuple[Path, Path, Path]:
         tiny.write_bytes(head + body[:cut] + text[end:])
         if gz.exists():
             gz.unlink()
-    if not gz.exists():
+    if with_gzip and not gz.exists():
         from isal import igzip
 
         with open(big, "rb") as src, igzip.open(gz, "wb", compresslevel=1) as dst:
             shutil.copyfileobj(src, dst, 8 << 20)
     return big, gz, tiny
-
-
-def run_child(mode: str, path: Path, threads: int, tiny: Path, repeat: int) -> dict[str, float]:
-    best: dict[str, float] | None = None
-    for _ in range(repeat):
-        out = subprocess.run([sys.executable, "-c", CHILD, mode, str(path), str(threads),
-                              str(tiny)], capture_output=True, text=True, check=True)  # fmt: skip
-        got = json.loads(out.stdout.strip().splitlines()[-1])
-        if best is None or got["seconds"] < best["seconds"]:
-            best = got
-    assert best is not None
-    return best
 
 
 def pieces(text: bytes, cut: bytes, size: int = 4 << 20) -> list[np.ndarray]:
@@ -122,8 +91,9 @@ def pieces(text: bytes, cut: bytes, size: int = 4 << 20) -> list[np.ndarray]:
     return out
 
 
-def kernel_rates(big: Path, repeat: int) -> tuple[float, float]:
-    """(HepMC kernel MB/s, LHE kernel MB/s), one thread, CPU time, best of ``repeat``."""
+def kernel_rates(big: Path, repeat: int) -> tuple[list[float], list[float]]:
+    """MB/s of the HepMC kernel and of the LHE kernel, one thread, CPU time, ``repeat``
+    interleaved passes each."""
     from evtkin.io import hepmc_scan as c
     from evtkin.io import lhe
 
@@ -172,37 +142,72 @@ def kernel_rates(big: Path, repeat: int) -> tuple[float, float]:
 
     hepmc_pass()
     lhe_pass()
-    th = min(hepmc_pass() for _ in range(repeat))
-    tl = min(lhe_pass() for _ in range(repeat))
-    return len(text) / th / 1e6, len(body) / tl / 1e6
+    rh, rl = [], []
+    for _ in range(repeat):
+        rh.append(len(text) / hepmc_pass() / 1e6)
+        rl.append(len(body) / lhe_pass() / 1e6)
+    return rh, rl
+
+
+def rss_growth(out_dir: Path, sizes: list[int]) -> None:
+    """Peak RSS of a default read (threads and step size) of files of ``sizes`` MB, each
+    made for the purpose and deleted afterwards."""
+    tiny = out_dir / "evtkin_bench_tiny.hepmc"
+    for mb in sizes:
+        big, _gz, tiny = make_files(out_dir, mb, with_gzip=False)
+        try:
+            got = run_child(CHILD, ["reader", str(big), "-1", str(tiny)])
+            size = big.stat().st_size
+            print(f"{size / 1e6:7.0f} MB file, default options: {size / got['seconds'] / 1e6:5.0f} "
+                  f"MB/s, {got['n']} events, peak RSS {got['rss_mb']:.0f} MB")  # fmt: skip
+        finally:
+            big.unlink(missing_ok=True)
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawTextHelpFormatter)
     ap.add_argument("--mb", type=int, default=300, help="size of the big file (MB of text)")
-    ap.add_argument("--repeat", type=int, default=2)
+    ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--out-dir", default="/tmp")
+    ap.add_argument("--rss", default="",
+                    help="comma-separated file sizes in MB (e.g. 1000,3000): peak RSS of a "
+                    "default read of each (files made and deleted here)")  # fmt: skip
+    ap.add_argument("--skip-rates", action="store_true", help="only the --rss figures")
     args = ap.parse_args()
-    big, gz, tiny = make_files(Path(args.out_dir), args.mb)
+    out_dir = Path(args.out_dir)
+    if not args.skip_rates:
+        rates(out_dir, args.mb, args.repeat)
+    if args.rss:
+        rss_growth(out_dir, [int(x) for x in args.rss.split(",")])
+
+
+def rates(out_dir: Path, mb: int, repeat: int) -> None:
+    big, gz, tiny = make_files(out_dir, mb)
     size = big.stat().st_size
     print(f"file {big} ({size / 1e6:.0f} MB; gzip {gz.stat().st_size / 1e6:.0f} MB); "
-          f"load average {os.getloadavg()[0]:.2f}")  # fmt: skip
+          f"load average {os.getloadavg()[0]:.2f}; {repeat} interleaved rounds")  # fmt: skip
     rows = [("bare line scan (baseline)", "bare", big, 0), ("raw readinto", "raw", big, 0),
             ("reader, threads=0", "reader", big, 0), ("reader, threads=1", "reader", big, 1),
             ("reader, threads=2", "reader", big, 2),
             ("reader, gzip (default threads)", "reader", gz, -1),
             ("raw gzip decompression", "decompress", gz, 0)]  # fmt: skip
-    base = None
-    print(f"{'case':34s} {'MB/s':>8s} {'x line scan':>12s} {'peak RSS MB':>12s}")
-    for label, mode, path, threads in rows:
-        got = run_child(mode, path, threads, tiny, args.repeat)
-        rate = size / got["seconds"] / 1e6
-        if base is None:
-            base = rate
-        print(f"{label:34s} {rate:8.0f} {rate / base:12.2f} {got['rss_mb']:12.0f}")
-    h, lrate = kernel_rates(big, args.repeat)
-    print(f"compiled scanners alone, one thread (CPU time): HepMC {h:.0f} MB/s, LHE {lrate:.0f} "
-          f"MB/s, ratio {h / lrate:.2f}")  # fmt: skip
+    cases = [(label, [mode, str(path), str(threads), str(tiny)])
+             for label, mode, path, threads in rows]  # fmt: skip
+    res = interleaved(cases, CHILD, repeat)
+    base = res[rows[0][0]]
+    print(f"{'case':34s} {'MB/s':>6s} {'x line scan':>12s} {'(median)':>9s} {'peak RSS MB':>12s}")
+    for label, *_ in rows:
+        r = res[label]
+        rate = size / r["seconds"] / 1e6
+        # the median ratio: the case's median time against the baseline's median time
+        print(f"{label:34s} {rate:6.0f} {base['seconds'] / r['seconds']:12.2f} "
+              f"{base['median'] / r['median']:9.2f} {r['rss_mb']:12.0f}")  # fmt: skip
+    print(f"load average after: {os.getloadavg()[0]:.2f}")
+    rh, rl = kernel_rates(big, max(repeat, 3))
+    ratios = sorted(h / lr for h, lr in zip(rh, rl, strict=True))
+    print(f"compiled scanners alone, one thread (CPU time, {len(rh)} interleaved passes): HepMC "
+          f"best {max(rh):.0f} MB/s, LHE best {max(rl):.0f} MB/s, ratio of bests "
+          f"{max(rh) / max(rl):.2f}, median pass ratio {ratios[len(ratios) // 2]:.2f}")  # fmt: skip
 
 
 if __name__ == "__main__":

@@ -13,7 +13,6 @@ measurement runs in a fresh subprocess; the best of ``--repeat`` runs is shown.
 from __future__ import annotations
 
 import argparse
-import json
 import os
 import subprocess
 import sys
@@ -21,23 +20,14 @@ import tempfile
 import time
 from pathlib import Path
 
-CHILD = r"""
-import json, resource, sys, time
+from _baselines import CHILD_PRELUDE, run_child
+from _baselines import interleaved as _interleaved
+
+CHILD = CHILD_PRELUDE + r"""
 mode, path, threads = sys.argv[1], sys.argv[2], int(sys.argv[3])
 t0 = time.perf_counter()
-n = 0
-if mode == "bare":
-    for line in open(path, "rb"):
-        n += 1
-elif mode == "decompress":
-    from isal import igzip
-    buf = bytearray(8 << 20)
-    with igzip.open(path, "rb") as fh:
-        while True:
-            got = fh.readinto(buf)
-            if not got:
-                break
-            n += got
+if mode in ("bare", "decompress"):
+    n = baseline(mode, path)
 else:
     import evtkin
     # load the cached compiled kernel and start the threads once on a tiny file: start-up is
@@ -45,11 +35,10 @@ else:
     for _ in evtkin.read_lhe(sys.argv[4]):
         pass
     t0 = time.perf_counter()
+    n = 0
     for chunk in evtkin.read_lhe(path, threads=threads):
         n += len(chunk)
-dt = time.perf_counter() - t0
-rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-print(json.dumps({"seconds": dt, "n": n, "rss_mb": rss}))
+report(time.perf_counter() - t0, n)
 """
 
 STARTUP = r"""
@@ -91,28 +80,13 @@ def make_big(path: str, copies: int) -> str:
 
 
 def run(mode: str, path: str, threads: int = 1, env: dict | None = None) -> dict:
-    out = subprocess.run(
-        [sys.executable, "-c", CHILD, mode, path, str(threads), TINY],
-        capture_output=True, text=True, check=True, env=env,
-    )  # fmt: skip
-    return json.loads(out.stdout.strip().splitlines()[-1])
+    return run_child(CHILD, [mode, path, str(threads), TINY], env)
 
 
 def interleaved(cases: list[tuple[str, str, str, int]], repeat: int) -> dict[str, dict]:
-    """Run every case once per round, ``repeat`` rounds (A/B/C, A/B/C, ...): on a machine
-    shared with other work the load drifts, and interleaving spreads the drift over all
-    cases. Per case: the fastest run, and the largest peak RSS."""
-    runs: dict[str, list[dict]] = {label: [] for label, *_ in cases}
-    for _ in range(repeat):
-        for label, mode, path, threads in cases:
-            runs[label].append(run(mode, path, threads))
-    out = {}
-    for label, rs in runs.items():
-        r = dict(min(rs, key=lambda x: x["seconds"]))
-        r["rss_mb"] = max(x["rss_mb"] for x in rs)
-        r["all"] = [x["seconds"] for x in rs]
-        out[label] = r
-    return out
+    """Every case once per round, ``repeat`` rounds (see ``_baselines.interleaved``)."""
+    return _interleaved([(label, [mode, path, str(threads), TINY])
+                         for label, mode, path, threads in cases], CHILD, repeat)  # fmt: skip
 
 
 def timed_startup(tiny: str, env: dict | None = None) -> tuple[float, float]:

@@ -32,7 +32,6 @@ reads, parses and copies in the caller's thread.
 from __future__ import annotations
 
 import mmap
-import os
 import queue
 import re
 import sys
@@ -53,8 +52,8 @@ from evtkin.io.lhe_header import lhe_info, open_lhe, xml_escape
 from evtkin.io.sources import (
     Source,
     compressed_size,
-    detect_compression,
     open_binary,
+    reader_options,
     source_name,
 )
 
@@ -792,14 +791,6 @@ def _sniff_weight_count(first: bytes) -> int:
     return len(first[j + 1 : e].split())
 
 
-def _default_threads(compressed: bool) -> int:
-    """2 parse threads where there are cores for them; with a compressed input the reader
-    thread's decompression keeps a core busy too (on 2 cores, 2 parse threads measured
-    slower than 1 for gzip)."""
-    cores = os.cpu_count() or 1
-    return max(1, min(2, cores - 1 if compressed else cores))
-
-
 def read_lhe(
     source: Source,
     *,
@@ -832,27 +823,8 @@ def read_lhe(
     ``strict`` is true; with ``strict=False`` it issues an :class:`LHEWarning` instead.
     A valid file without events yields nothing.
     """
-    if int(step_size) < 1:
-        raise ValueError(f"step_size must be >= 1, got {step_size}")
-    if byte_range is not None:
-        start, stop = (int(x) for x in byte_range)
-        if start < 0 or stop < start:
-            raise ValueError(
-                f"byte_range must be (start, stop) with 0 <= start <= stop, got {byte_range}"
-            )
-        kind = detect_compression(source)
-        if kind is not None:
-            raise LHEError(
-                f"{source_name(source)}: byte_range needs an uncompressed file, this one is "
-                f"{kind}-compressed"
-            )
-        byte_range = (start, stop)
-    if threads is None:
-        nthreads = _default_threads(detect_compression(source) is not None)
-    else:
-        nthreads = int(threads)
-    if nthreads < 0:
-        raise ValueError(f"threads must be >= 0, got {threads}")
+    _, nthreads, byte_range = reader_options(source, int(step_size), threads, byte_range,
+                                             LHEError)  # fmt: skip
     return _iterate(source, int(step_size), strict, nthreads, byte_range)
 
 

@@ -31,13 +31,15 @@ import zlib
 from pathlib import Path
 from typing import Any, BinaryIO, cast
 
-from evtkin.errors import LHEError
+from evtkin.errors import EvtkinError, LHEError
 
 __all__ = [
     "Source",
     "compressed_size",
+    "default_threads",
     "detect_compression",
     "open_binary",
+    "reader_options",
     "source_name",
 ]
 
@@ -246,3 +248,53 @@ def read_error(path: Source, exc: Exception) -> LHEError:
     """An :class:`LHEError` naming the file, for a decompression or read failure."""
     kind = detect_compression(path) or "plain"
     return LHEError(f"{source_name(path)}: cannot read ({kind} stream is corrupt?): {exc}")
+
+
+def default_threads(compressed: bool) -> int:
+    """A streaming reader's default parse threads: 2 where there are cores for them; with a
+    compressed input the reader thread's decompression keeps a core busy too (on 2 cores,
+    2 parse threads measured slower than 1 for gzip)."""
+    cores = os.cpu_count() or 1
+    return max(1, min(2, cores - 1 if compressed else cores))
+
+
+def reader_options(
+    source: Source,
+    step_size: int | None,
+    threads: int | None,
+    byte_range: tuple[int, int] | None,
+    error: type[EvtkinError],
+) -> tuple[int | None, int, tuple[int, int] | None]:
+    """The checked options of a streaming reader (``read_lhe``, ``read_hepmc``): (step size,
+    parse threads, byte range). A step size < 1, a byte range that is not ``0 <= start <=
+    stop`` and negative threads are a :class:`ValueError`; a byte range of a compressed
+    file (and a file that cannot be opened) is ``error``, the reader's error class.
+    ``threads=None`` is :func:`default_threads` for the file's compression."""
+
+    def compression() -> str | None:
+        try:
+            return detect_compression(source)
+        except LHEError as exc:
+            if issubclass(LHEError, error):
+                raise
+            raise error(str(exc)) from None
+
+    if step_size is not None and int(step_size) < 1:
+        raise ValueError(f"step_size must be >= 1, got {step_size}")
+    if byte_range is not None:
+        start, stop = (int(x) for x in byte_range)
+        if start < 0 or stop < start:
+            raise ValueError(
+                f"byte_range must be (start, stop) with 0 <= start <= stop, got {byte_range}"
+            )
+        kind = compression()
+        if kind is not None:
+            raise error(
+                f"{source_name(source)}: byte_range needs an uncompressed file, this one is "
+                f"{kind}-compressed"
+            )
+        byte_range = (start, stop)
+    nthreads = default_threads(compression() is not None) if threads is None else int(threads)
+    if nthreads < 0:
+        raise ValueError(f"threads must be >= 0, got {threads}")
+    return (None if step_size is None else int(step_size)), nthreads, byte_range
