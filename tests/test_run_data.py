@@ -155,6 +155,8 @@ def test_data_flag_in_results_cutflows_and_plots(files, tmp_path):
     assert f"<td>{N}</td>" in page
     assert "± √N" in page
     assert "expected events (2 fb⁻¹)" in page
+    # without a plots folder the report draws the run plots' own figures (one per histogram)
+    assert render_run_report(back).count("<img") == 4
     # above the frame: √s from the LHE beams (6500 + 6500 GeV head on: √s = 13 TeV, common
     # practice) and, for expected events, the luminosity
     assert raw["plot"]["sqrt_s_gev"] == pytest.approx(13000.0)

@@ -716,7 +716,7 @@ def _curves(hname: str, present: list[Any], measured: Mapping[str, Any], opts: P
             raise ResultsError(f"plot overlay: no sample {n!r}; the results hold "
                                f"{', '.join(results.samples) or 'none'}")
     # data samples (counted events) are always points: after the listed ones, never stacked
-    counted = [n for n, s in results.samples.items() if s.data]
+    counted = [n for n, s in results.samples.items() if getattr(s, "data", False)]
     for role in ("stack", "overlay"):
         for n in getattr(opts, role) or ():
             if n in counted:

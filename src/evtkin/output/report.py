@@ -24,6 +24,7 @@ import numpy as np
 
 from evtkin._version import __version__
 from evtkin.files import atomic_write_text
+from evtkin.output.tables import Results as ResultsRecord
 from evtkin.output.tables import _cutflow_table
 
 __all__ = ["render_compare_report", "render_run_report", "write_compare_report", "write_run_report"]
@@ -333,7 +334,7 @@ def render_run_report(
             f'<h3 id="{_anchor(h)}">{_e(first.title or h)} '
             f'<span class="small">({_e(h)}, {_e(first.normalisation)})</span></h3>'
         )
-        for png, cap in _run_pngs(folder_p, h, have, meta):
+        for png, cap in _run_pngs(folder_p, h, have, meta, results):
             body.append(f"<figure>{_img(png, cap)}<figcaption>{_e(cap)}</figcaption></figure>")
 
     body.append('<h2 id="provenance">Provenance</h2>')
@@ -351,7 +352,8 @@ def render_run_report(
 
 
 def _run_pngs(
-    folder: Path | None, h: str, have: list[tuple[str, Any]], meta: dict[str, Any]
+    folder: Path | None, h: str, have: list[tuple[str, Any]], meta: dict[str, Any],
+    results: Any = None,
 ) -> list[tuple[bytes, str]]:
     safe = "".join(ch if (ch.isalnum() or ch in "_.+-") else "_" for ch in h)
     first = have[0][1]
@@ -368,7 +370,18 @@ def _run_pngs(
                     out.append((p.read_bytes(), f"{hr.title or h} — {sn}"))
             if len(out) == len(have):
                 return out
-    return _draw_run_plots(h, have, str(meta.get("note", "") or ""))
+    note = str(meta.get("note", "") or "")
+    if isinstance(results, ResultsRecord):
+        # no PNG in the folder (e.g. plot_formats = ["pdf"]): the run plots' own figures
+        from evtkin.output.plots import write_plots
+
+        with tempfile.TemporaryDirectory() as tmp:
+            paths = write_plots(tmp, results, note=note, hists=[h],
+                                overrides={"formats": ["png"]})
+            caps = ([first.title or h] if ndim == 1 else
+                    [f"{hr.title or h} — {sn}" for sn, hr in have])
+            return [(p.read_bytes(), c) for p, c in zip(paths, caps, strict=False)]
+    return _draw_run_plots(h, have, note)
 
 
 def _draw_run_plots(h: str, have: list[tuple[str, Any]], note: str) -> list[tuple[bytes, str]]:
