@@ -176,6 +176,8 @@ def test_data_sample_config_errors(files, tmp_path):
         load_config(config(data_file, mc_file, cross_section_pb=5.0))
     with pytest.raises(ConfigError, match=r"samples\.observed\.weight.*no event weight"):
         load_config(config(data_file, mc_file, weight="2"))
+    with pytest.raises(ConfigError, match=r"samples\.observed\.truth_files.*no generator-level"):
+        load_config(config(data_file, mc_file, truth_files=[str(mc_file)]))
     cfg = config(data_file, mc_file)
     cfg["plot"] = {"stack": ["dy", "observed"]}
     with pytest.raises(ConfigError, match=r"plot\.stack\[1\].*data sample"):

@@ -77,16 +77,17 @@ def _read_samples(top: _Table, base: Path, lumi: float | None,
         paths = _expand_files(s, files, fmt or "auto", base, warnings)
         if fmt is None:
             fmt = _format_of_content(paths)
-        ntuple = _read_ntuple_sample(s, fmt, base)
-        weight = s.expression("weight") if s.has("weight") else None
-        s.known.append("weight")
         data = s.boolean("data", False)
         if data:
             for key, what in (("cross_section_pb", "cross section"),
-                              ("weight", "event weight")):
+                              ("weight", "event weight"),
+                              ("truth_files", "generator-level truth")):
                 if s.has(key):
                     raise s.ctx.error((*s.path, key), f"a data sample (data = true) counts "
                                       f"events with weight 1 and has no {what}; remove {key}")
+        ntuple = _read_ntuple_sample(s, fmt, base)
+        weight = s.expression("weight") if s.has("weight") else None
+        s.known.append("weight")
         out[name] = SampleSpec(
             name=name,
             files=paths,
