@@ -8,7 +8,8 @@ bench_lhe.py and bench_hepmc.py).
 * ``"raw"``: ``readinto`` of the file's bytes into one 8 MB buffer,
 * ``"decompress"``: ``isal.igzip`` decompression of a gzip file, ``readinto`` as above,
 
-and ``report(seconds, n)``, which prints the child's result line (with its peak RSS).
+and ``report(seconds, n, cpu=None)``, which prints the child's result line (with its peak
+RSS; ``cpu``: the process CPU seconds of the timed part, where the child measures them).
 :func:`run_child` runs one child and reads that line; :func:`interleaved` runs cases in
 rounds (A/B/C, A/B/C, ...) so that drifting load on a shared machine spreads over all
 cases, and keeps each case's fastest and median time and largest peak RSS.
@@ -50,9 +51,9 @@ def baseline(mode, path):
     return n
 
 
-def report(seconds, n):
+def report(seconds, n, cpu=None):
     rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-    print(json.dumps({"seconds": seconds, "n": n, "rss_mb": rss}))
+    print(json.dumps({"seconds": seconds, "n": n, "rss_mb": rss, "cpu": cpu}))
 """
 
 
@@ -67,7 +68,8 @@ def run_child(code: str, args: Sequence[str], env: dict[str, str] | None = None)
 def interleaved(cases: Sequence[tuple[str, Sequence[str]]], code: str, repeat: int,
                 env: dict[str, str] | None = None) -> dict[str, dict[str, Any]]:  # fmt: skip
     """Run every case (label, child args) once per round, ``repeat`` rounds. Per case: the
-    fastest run's figures, ``median`` seconds, ``all`` seconds and the largest peak RSS."""
+    fastest run's figures, ``median`` seconds, ``all`` seconds, the largest peak RSS and
+    ``cpu_min`` (the least CPU seconds of a run, where the child reports them)."""
     runs: dict[str, list[dict[str, Any]]] = {label: [] for label, _ in cases}
     for _ in range(repeat):
         for label, args in cases:
@@ -78,5 +80,7 @@ def interleaved(cases: Sequence[tuple[str, Sequence[str]]], code: str, repeat: i
         best["rss_mb"] = max(x["rss_mb"] for x in rs)
         best["all"] = [x["seconds"] for x in rs]
         best["median"] = statistics.median(best["all"])
+        cpus = [x["cpu"] for x in rs if x.get("cpu") is not None]
+        best["cpu_min"] = min(cpus) if cpus else None
         out[label] = best
     return out

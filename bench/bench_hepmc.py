@@ -37,17 +37,17 @@ LHE_SAMPLE = ROOT / "samples" / "toy_ttbar.lhe.gz"
 CHILD = CHILD_PRELUDE + r"""
 mode, path, threads, tiny = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4]
 if mode in ("bare", "raw", "decompress"):
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     n = baseline(mode, path)
 else:
     import evtkin
     for _ in evtkin.read_hepmc(tiny):  # warm: cached kernel, threads
         pass
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     n = 0
     for chunk in evtkin.read_hepmc(path, threads=None if threads < 0 else threads):
         n += len(chunk)
-report(time.perf_counter() - t0, n)
+report(time.perf_counter() - t0, n, time.process_time() - c0)
 """
 
 
@@ -193,15 +193,19 @@ def rates(out_dir: Path, mb: int, repeat: int) -> None:
             ("raw gzip decompression", "decompress", gz, 0)]  # fmt: skip
     cases = [(label, [mode, str(path), str(threads), str(tiny)])
              for label, mode, path, threads in rows]  # fmt: skip
+    run_child(CHILD, ["reader", str(tiny), "0", str(tiny)])  # compile or load the kernel once
     res = interleaved(cases, CHILD, repeat)
     base = res[rows[0][0]]
-    print(f"{'case':34s} {'MB/s':>6s} {'x line scan':>12s} {'(median)':>9s} {'peak RSS MB':>12s}")
+    # x line scan: best time against the baseline's best; (median): median against median;
+    # CPU MB/s: MB per CPU second of the process (all its threads), the least CPU of a run
+    print(f"{'case':34s} {'MB/s':>6s} {'x line scan':>12s} {'(median)':>9s} {'CPU MB/s':>9s} "
+          f"{'peak RSS MB':>12s}")  # fmt: skip
     for label, *_ in rows:
         r = res[label]
         rate = size / r["seconds"] / 1e6
-        # the median ratio: the case's median time against the baseline's median time
+        cpu = f"{size / r['cpu_min'] / 1e6:9.0f}" if r["cpu_min"] else f"{'':9s}"
         print(f"{label:34s} {rate:6.0f} {base['seconds'] / r['seconds']:12.2f} "
-              f"{base['median'] / r['median']:9.2f} {r['rss_mb']:12.0f}")  # fmt: skip
+              f"{base['median'] / r['median']:9.2f} {cpu} {r['rss_mb']:12.0f}")  # fmt: skip
     print(f"load average after: {os.getloadavg()[0]:.2f}")
     rh, rl = kernel_rates(big, max(repeat, 3))
     ratios = sorted(h / lr for h, lr in zip(rh, rl, strict=True))

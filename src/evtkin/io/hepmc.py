@@ -143,7 +143,7 @@ class _BlockPool:
         for i in free:
             if self.blocks[i].nbytes >= nbytes:
                 return self.blocks[i]
-        block = _block(nbytes)
+        block = _block(nbytes + nbytes // 4)  # (room for the next chunks' estimates)
         if free:
             self.blocks[free[0]] = block
         elif len(self.blocks) < self.keep:
