@@ -222,7 +222,8 @@ def _sources_from(
         s = res.samples[name]
         label = s.label or name
         if len(folders) > 1 and len({os.path.basename(str(f)) for f in folders}) == len(folders):
-            label = f"{label} ({os.path.basename(str(folder).rstrip('/'))})"
+            # the folder after a dash: labels often end in a parenthesis of their own
+            label = f"{label} — {os.path.basename(str(folder).rstrip('/'))}"
         return Source(label, str(folder), s, str(res.meta.get("note", "") or ""))
 
     if len(results) == 1:
