@@ -83,6 +83,17 @@ class Record:
         self.end.append(-1)
         return len(self.pdg) - 1
 
+    def add_many(self, pdgs: list[int], status: int, p: np.ndarray, masses: list[float],
+                 prod: int) -> None:  # fmt: skip
+        """Append the particles ``pdgs`` with momenta ``p`` (n, 4), all made at ``prod``."""
+        n = len(pdgs)
+        self.pdg += pdgs
+        self.status += [status] * n
+        self.p += list(np.asarray(p, dtype=np.float64))
+        self.m += masses
+        self.prod += [prod] * n
+        self.end += [-1] * n
+
 
 # ------------------------------------------------------------------ kinematics
 
@@ -110,11 +121,16 @@ def _on_shell(p3: np.ndarray, m: float) -> np.ndarray:
     return np.array([p3[0], p3[1], p3[2], math.sqrt(float(p3 @ p3) + m * m)])
 
 
+def _cross(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    return np.array([a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2],
+                     a[0] * b[1] - a[1] * b[0]])  # fmt: skip
+
+
 def _perp(n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     a = np.array([1.0, 0.0, 0.0]) if abs(n[0]) < 0.9 else np.array([0.0, 1.0, 0.0])
-    e1 = np.cross(n, a)
-    e1 /= np.linalg.norm(e1)
-    return e1, np.cross(n, e1)
+    e1 = _cross(n, a)
+    e1 /= math.sqrt(float(e1 @ e1))
+    return e1, _cross(n, e1)
 
 
 def _two_body(P: np.ndarray, m1: float, m2: float, rng: np.random.Generator,
@@ -136,23 +152,55 @@ def _two_body(P: np.ndarray, m1: float, m2: float, rng: np.random.Generator,
     return p1, P - p1
 
 
-def _n_body(P: np.ndarray, masses: list[float], rng: np.random.Generator) -> list[np.ndarray]:
-    """``P`` -> len(masses) momenta by successive isotropic two-body splits (toy phase
-    space). The last product takes ``P`` minus the others: exact conservation."""
-    out = []
-    cur = P
-    for j in range(len(masses) - 1):
-        rest_min = sum(masses[j + 1 :])
-        M = math.sqrt(max(_mass2(cur), 0.0))
-        if j == len(masses) - 2:
-            m_rest = masses[-1]
-        else:
-            m_rest = rng.uniform(rest_min, max(M - masses[j], rest_min))
-        p1, p2 = _two_body(cur, masses[j], m_rest, rng)
-        out.append(p1)
-        cur = p2
-    out.append(cur)
+def _boost_rows(p: np.ndarray, beta: np.ndarray) -> np.ndarray:
+    """Boost each four-vector ``p[j]`` (n, 4) by its own velocity ``beta[j]`` (n, 3)."""
+    b2 = np.einsum("ij,ij->i", beta, beta)
+    safe = np.where(b2 > 0.0, b2, 1.0)
+    gamma = 1.0 / np.sqrt(1.0 - b2)
+    bp = np.einsum("ij,ij->i", p[:, :3], beta)
+    g2 = np.where(b2 > 0.0, (gamma - 1.0) / safe, 0.0)
+    out = np.empty_like(p)
+    out[:, :3] = p[:, :3] + (g2 * bp + gamma * p[:, 3])[:, None] * beta
+    out[:, 3] = gamma * (p[:, 3] + bp)
     return out
+
+
+def _mass2_rows(p: np.ndarray) -> np.ndarray:
+    m2: np.ndarray = p[:, 3] * p[:, 3] - np.einsum("ij,ij->i", p[:, :3], p[:, :3])
+    return m2
+
+
+def _n_body_rows(P: np.ndarray, masses: list[float], rng: np.random.Generator) -> np.ndarray:
+    """Each of ``P`` (k, 4) -> len(masses) momenta, (k, len(masses), 4): the toy phase space
+    (successive isotropic two-body splits) for k parents at once (the last product takes the rest exactly)."""
+    k, n = len(P), len(masses)
+    out = np.empty((k, n, 4))
+    cur = P
+    for j in range(n - 1):
+        M = np.sqrt(np.maximum(_mass2_rows(cur), 0.0))
+        if j == n - 2:
+            m_rest = np.full(k, masses[-1])
+        else:
+            rest_min = sum(masses[j + 1 :])
+            m_rest = rng.uniform(rest_min, np.maximum(M - masses[j], rest_min))
+        m1 = masses[j]
+        lam = (M * M - (m1 + m_rest) ** 2) * (M * M - (m1 - m_rest) ** 2)
+        q = np.sqrt(np.maximum(lam, 0.0)) / (2 * M)
+        cos = rng.uniform(-1, 1, k)
+        phi = rng.uniform(0, 2 * math.pi, k)
+        sin = np.sqrt(1 - cos * cos)
+        p1 = np.column_stack([q * sin * np.cos(phi), q * sin * np.sin(phi), q * cos,
+                              np.sqrt(q * q + m1 * m1)])  # fmt: skip
+        p1 = _boost_rows(p1, cur[:, :3] / cur[:, 3:4])
+        out[:, j] = p1
+        cur = cur - p1
+    out[:, n - 1] = cur
+    return out
+
+
+def _on_shell_rows(p3: np.ndarray, masses: np.ndarray) -> np.ndarray:
+    e = np.sqrt(np.einsum("ij,ij->i", p3, p3) + masses * masses)
+    return np.column_stack([p3, e])
 
 
 def _emit(pi: np.ndarray, mi: float, pk: np.ndarray, mk: float, kt: float, eta: float,
@@ -234,24 +282,23 @@ class _Event:
     def _light(self, n: int) -> list[int]:
         return [int(x) for x in self.rng.choice(_LIGHT_PDG, size=n, p=_LIGHT_P)]
 
-    def _along(self, direction: np.ndarray, energy: float, pdgs: list[int]) -> list[np.ndarray]:
-        """Momenta of hadrons ``pdgs`` sharing ``energy`` along ``direction``."""
+    def _along(self, direction: np.ndarray, energy: float, pdgs: list[int]) -> np.ndarray:
+        """Momenta (n, 4) of hadrons ``pdgs`` sharing ``energy`` along ``direction``."""
         rng = self.rng
+        k = len(pdgs)
         masses = np.array([H.mass(x) for x in pdgs])
         kinetic = max(energy - masses.sum(), 0.0)
-        frac = rng.dirichlet(np.ones(len(pdgs))) if len(pdgs) > 1 else np.ones(1)
+        frac = rng.dirichlet(np.ones(k)) if k > 1 else np.ones(1)
         e = masses + kinetic * frac
         p = np.sqrt(np.maximum(e * e - masses * masses, 1e-12))
         n = direction / np.linalg.norm(direction)
         e1, e2 = _perp(n)
-        out = []
-        for j in range(len(pdgs)):
-            pt = min(abs(rng.normal(0, PT_FRAG)), 0.5 * p[j])
-            phi = rng.uniform(0, 2 * math.pi)
-            pl = math.sqrt(p[j] * p[j] - pt * pt)
-            out.append(_on_shell(pl * n + pt * (math.cos(phi) * e1 + math.sin(phi) * e2),
-                                 masses[j]))  # fmt: skip
-        return out
+        pt = np.minimum(np.abs(rng.normal(0, PT_FRAG, k)), 0.5 * p)
+        phi = rng.uniform(0, 2 * math.pi, k)
+        pl = np.sqrt(p * p - pt * pt)
+        p3 = (pl[:, None] * n + (pt * np.cos(phi))[:, None] * e1
+              + (pt * np.sin(phi))[:, None] * e2)  # fmt: skip
+        return _on_shell_rows(p3, masses)
 
     def hadronise(self, partons: list[int], b_quarks: list[int], remnants: list[int],
                   q_target: int) -> None:  # fmt: skip
@@ -294,69 +341,111 @@ class _Event:
                 pl, j = lists[int(rng.integers(len(lists)))]
                 pl[j] = {111: 211, -211: 111} [pl[j]] if step > 0 else {111: -211, 211: 111}[pl[j]]
                 total += step
-            # kinematics: jets, b hadrons, underlying event
-            out: list[tuple[int, np.ndarray]] = []
+            # kinematics: jets, b hadrons, underlying event (blocks of momenta, whole arrays)
+            out_pdg: list[int] = []
+            out_p: list[np.ndarray] = []
             for kind, direction, energy, pdgs in groups:
                 if kind == "b":
                     m = H.mass(pdgs[0])
                     pmag = math.sqrt(max(energy * energy - m * m, 0.25 * energy * energy))
                     d = direction / np.linalg.norm(direction)
-                    out.append((pdgs[0], _on_shell(pmag * d, m)))
+                    out_pdg.append(pdgs[0])
+                    out_p.append(_on_shell(pmag * d, m)[None, :])
                 else:
-                    out += list(zip(pdgs, self._along(direction, energy, pdgs), strict=True))
-            for x in ue:
-                pt = rng.gamma(2.0, 0.3)
-                eta = rng.uniform(-UE_ETA, UE_ETA)
-                phi = rng.uniform(0, 2 * math.pi)
-                p3 = np.array([pt * math.cos(phi), pt * math.sin(phi), pt * math.sinh(eta)])
-                out.append((x, _on_shell(p3, H.mass(x))))
+                    out_pdg += pdgs
+                    out_p.append(self._along(direction, energy, pdgs))
+            n_ue = len(ue)
+            pt = rng.gamma(2.0, 0.3, n_ue)
+            eta = rng.uniform(-UE_ETA, UE_ETA, n_ue)
+            phi = rng.uniform(0, 2 * math.pi, n_ue)
+            p3 = np.column_stack([pt * np.cos(phi), pt * np.sin(phi), pt * np.sinh(eta)])
+            out_pdg += ue
+            out_p.append(_on_shell_rows(p3, np.array([H.mass(x) for x in ue])))
             # remnant hadrons take the rest exactly
-            P_rest = P_in - np.sum([p for _, p in out], axis=0)
+            P_rest = P_in - np.concatenate(out_p).sum(axis=0)
             rest_pdgs = [x for r in rem for x in r]
             masses = np.array([H.mass(x) for x in rest_pdgs])
             if P_rest[3] <= 0 or _mass2(P_rest) <= (masses.sum() * 1.01) ** 2:
                 continue
-            approx = []
-            for r, ri in zip(rem, remnants, strict=True):
-                approx += self._along(rec.p[ri][:3], rec.p[ri][3], r)
-            moved = _match_total(np.array(approx), masses, P_rest)
+            approx = np.concatenate([self._along(rec.p[ri][:3], rec.p[ri][3], r)
+                                     for r, ri in zip(rem, remnants, strict=True)])  # fmt: skip
+            moved = _match_total(approx, masses, P_rest)
             if moved is None:
                 continue
-            out += list(zip(rest_pdgs, moved, strict=True))
+            out_pdg += rest_pdgs
+            out_p.append(moved)
             break
         else:  # pragma: no cover - never seen; keeps the loop finite
             raise RuntimeError("toy hadronisation found no valid configuration")
         v = rec.vertex(incoming)
-        for pdg, p in out:
-            rec.add(pdg, ST_STABLE, p, H.mass(pdg), v)
+        rec.add_many(out_pdg, ST_STABLE, np.concatenate(out_p), [H.mass(x) for x in out_pdg], v)
 
     # --- decays
     def decay_all(self) -> None:
+        """Decay every unstable particle, one generation at a time (B -> charm -> K0S ->
+        pi0 ...): the channels drawn per species, the flight lengths and the products'
+        momenta drawn for the whole generation at once (grouped by channel)."""
         rec, rng = self.rec, self.rng
-        i = 0
-        while i < len(rec.pdg):
-            pdg = rec.pdg[i]
-            if rec.status[i] == ST_STABLE and H.unstable(pdg):
-                a = abs(pdg)
-                if a in H.B_HADRONS:
-                    chans = H.b_decays(pdg)
-                else:
-                    chans = H.DECAYS[a]
-                    if pdg < 0:
-                        chans = [(f, tuple(H.conj(x) for x in pr)) for f, pr in chans]
-                fr = np.array([c[0] for c in chans])
-                prods = list(chans[int(rng.choice(len(chans), p=fr / fr.sum()))][1])
-                m = rec.m[i]
-                p = rec.p[i]
-                length = H.ctau(pdg) * rng.exponential()
-                start = rec.vpos[rec.prod[i]] if rec.prod[i] >= 0 else np.zeros(4)
-                pos = start + np.array([*(p[:3] / m * length), p[3] / m * length])
-                v = rec.vertex([i], pos)
+        start = 0
+        while True:
+            todo = [i for i in range(start, len(rec.pdg))
+                    if rec.status[i] == ST_STABLE and H.unstable(rec.pdg[i])]  # fmt: skip
+            start = len(rec.pdg)
+            if not todo:
+                return
+            pdgs = np.array([rec.pdg[i] for i in todo])
+            prods: list[tuple[int, ...]] = [()] * len(todo)
+            for species in np.unique(pdgs).tolist():
+                sel = np.flatnonzero(pdgs == species)
+                chans, fr = _channels(species)
+                for j, c in zip(sel.tolist(), rng.choice(len(chans), size=len(sel), p=fr).tolist(),
+                                strict=True):  # fmt: skip
+                    prods[j] = chans[c]
+            P = np.array([rec.p[i] for i in todo])
+            m = np.array([rec.m[i] for i in todo])
+            length = np.array([H.ctau(x) for x in pdgs.tolist()]) * rng.exponential(size=len(todo))
+            origin = np.array([rec.vpos[rec.prod[i]] if rec.prod[i] >= 0 else np.zeros(4)
+                               for i in todo])  # fmt: skip
+            pos = origin + P * (length / m)[:, None]
+            by_channel: dict[tuple[int, ...], list[int]] = {}
+            for j, pr in enumerate(prods):
+                by_channel.setdefault(pr, []).append(j)
+            moms: list[np.ndarray] = [P] * len(todo)
+            for pr, js in by_channel.items():
+                got = _n_body_rows(P[js], _masses(pr), rng)
+                for r, j in enumerate(js):
+                    moms[j] = got[r]
+            for j, i in enumerate(todo):
+                v = rec.vertex([i], pos[j])
                 rec.status[i] = ST_DECAYED
-                for q, pq in zip(prods, _n_body(p, [H.mass(x) for x in prods], rng),
-                                 strict=True):  # fmt: skip
-                    rec.add(q, ST_STABLE, pq, H.mass(q), v)
-            i += 1
+                rec.add_many(list(prods[j]), ST_STABLE, moms[j], _masses(prods[j]), v)
+
+
+_CHANNELS: dict[int, tuple[list[tuple[int, ...]], np.ndarray]] = {}
+_MASSES: dict[tuple[int, ...], list[float]] = {}
+
+
+def _channels(pdg: int) -> tuple[list[tuple[int, ...]], np.ndarray]:
+    """The decay channels' products of ``pdg`` and their probabilities (memoised)."""
+    got = _CHANNELS.get(pdg)
+    if got is None:
+        a = abs(pdg)
+        if a in H.B_HADRONS:
+            chans = H.b_decays(pdg)
+        else:
+            chans = H.DECAYS[a]
+            if pdg < 0:
+                chans = [(f, tuple(H.conj(x) for x in pr)) for f, pr in chans]
+        fr = np.array([c[0] for c in chans])
+        got = _CHANNELS[pdg] = ([c[1] for c in chans], fr / fr.sum())
+    return got
+
+
+def _masses(pdgs: tuple[int, ...]) -> list[float]:
+    got = _MASSES.get(pdgs)
+    if got is None:
+        got = _MASSES[pdgs] = [H.mass(x) for x in pdgs]
+    return got
 
 
 def _match_total(p: np.ndarray, masses: np.ndarray, target: np.ndarray) -> np.ndarray | None:
