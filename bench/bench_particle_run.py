@@ -4,10 +4,10 @@
     python bench/bench_particle_run.py [--file PATH] [--events 2000] [--workers 2] [--copies 4]
 
 The input is a plain (uncompressed, so it splits into byte-range units) toy shower file in
-/tmp, made once with ``evtkin toy shower samples/toy_ttbar.lhe.gz -n EVENTS`` (slow: about
-10 s per 250 events); the shipped 250-event sample is too small to time. The config's samples
-are replaced by that file and its response histograms become plain ones (no truth files, so
-the file splits into units).
+/tmp, made once with ``evtkin toy shower samples/toy_ttbar.lhe.gz -n EVENTS`` (about
+4 s per 250 events on one core); the shipped 250-event sample is too small to time. The
+config's samples are replaced by that file and its response histograms become plain ones
+(no truth files, so the file splits into units).
 
 A. In this process, one core (reader without threads), CPU time (``time.process_time``) per
    stage, cumulative: read only (the baseline), + objects (prompt, dressing, ghost-labelled

@@ -171,8 +171,9 @@ def _mass2_rows(p: np.ndarray) -> np.ndarray:
 
 
 def _n_body_rows(P: np.ndarray, masses: list[float], rng: np.random.Generator) -> np.ndarray:
-    """Each of ``P`` (k, 4) -> len(masses) momenta, (k, len(masses), 4): the toy phase space
-    (successive isotropic two-body splits) for k parents at once (the last product takes the rest exactly)."""
+    """Each of ``P`` (k, 4) -> len(masses) momenta, (k, len(masses), 4), for k parents at
+    once: the toy phase space of successive isotropic two-body splits (the last product
+    takes the rest: exact conservation)."""
     k, n = len(P), len(masses)
     out = np.empty((k, n, 4))
     cur = P
