@@ -133,7 +133,12 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     ``progress`` is called with the number of events of every chunk done;
     ``read_threads`` is the number of parse threads of the reader (default: its own).
     With ``truth_files`` the response matrices of the histograms marked ``response = true``
-    are filled as well.
+    are filled as well. The readers' warnings (:func:`reader_warnings`) go to
+    ``PartialResult.warnings`` instead of being shown here (Python's warning filters are
+    per process: one unit at a time per process, as every executor here runs them). With
+    ``plan.keep_partial`` (``--skip-bad``) a unit whose reading fails is read again
+    leniently where its format can, after the events already analysed, and then raises
+    :class:`PartialUnitError` holding every intact event's contribution.
     """
     sample = unit.sample
     spec = plan.config.samples[sample]
