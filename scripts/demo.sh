@@ -105,7 +105,7 @@ fi
 if [ -f "$PL_PARTON/results.json" ]; then
     echo "== comparison: evtkin compare parton level vs particle level (same $PL_EVENTS events)"
     "$PY" -m evtkin compare "$PL_PARTON" "$OUT/ttbar_particle_level" \
-        --samples ttbar ttbar --hists m_tt top_pt lepton_pt --out "$OUT/compare_particle_parton"
+        --samples ttbar ttbar --hists m_tt top_pt_wide lepton_pt --out "$OUT/compare_particle_parton"
 fi
 
 echo
