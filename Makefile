@@ -3,6 +3,8 @@ PYTHON ?= python3
 VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
+# pytest processes for `make test` (pytest-xdist): one per core by default; TEST_WORKERS=0 runs in one process
+TEST_WORKERS ?= auto
 
 .PHONY: demo test lint bench samples clean
 
@@ -16,7 +18,7 @@ $(STAMP): pyproject.toml
 test: $(STAMP)
 	$(VENV)/bin/ruff check src tests bench
 	$(VENV)/bin/mypy
-	$(VENV)/bin/pytest
+	$(VENV)/bin/pytest -n $(TEST_WORKERS)
 
 lint: $(STAMP)
 	$(VENV)/bin/ruff check src tests bench
