@@ -18,6 +18,8 @@ $(STAMP): pyproject.toml
 test: $(STAMP)
 	$(VENV)/bin/ruff check src tests bench
 	$(VENV)/bin/mypy
+	@# compile the numba kernels once, into their cache, before the test processes start (else each compiles them)
+	$(PY) -c "import evtkin.run._warmup"
 	$(VENV)/bin/pytest -n $(TEST_WORKERS)
 
 lint: $(STAMP)
