@@ -139,7 +139,8 @@ class _BlockPool:
         self.blocks: list[np.ndarray] = []
 
     def take(self, nbytes: int) -> np.ndarray:
-        free = [i for i, b in enumerate(self.blocks) if sys.getrefcount(b) == 2]
+        # (indexing, not a loop variable: that would be a third reference to a free block)
+        free = [i for i in range(len(self.blocks)) if sys.getrefcount(self.blocks[i]) == 2]
         for i in free:
             if self.blocks[i].nbytes >= nbytes:
                 return self.blocks[i]
@@ -163,7 +164,9 @@ class Scratch:
     def ensure(self, nbytes: int) -> None:
         if nbytes <= self.nbytes:
             return
-        self.nbytes = nbytes = int(nbytes)
+        # room for the next buffers, which differ by a line or so: a new block has pages
+        # that fault again when first written
+        self.nbytes = nbytes = max(int(nbytes) + (int(nbytes) >> 3), BUFFER_BYTES + (1 << 20))
         cap = c.capacities(nbytes)
         ce, cp, cv = cap["events"], cap["particles"], cap["vertices"]
         i64, f64, i32 = np.int64, np.float64, np.int32
