@@ -120,3 +120,32 @@ def test_float_tokens_exact() -> None:
     assert got.p_f[0].tolist() == [float(t) for t in toks]
     assert ak.Array(got.p_f[0]).tolist() == scan_buffer(scan_py, arr, 3, 2, True, 1 << 62,
                                                         False).p_f[0].tolist()  # fmt: skip
+
+
+def test_sixteen_digit_exponent_floats_exact_without_slow_path(monkeypatch) -> None:  # type: ignore[no-untyped-def]
+    # files printed with %.16e (17 significant digits: the usual way to print a double so
+    # that it reads back exactly) are read by the compiled scanner itself, bit-identical
+    # to Python's float() (correctly rounded, IEEE 754), not by the per-token slow path
+    rng = np.random.default_rng(17)
+    vals = np.concatenate([rng.normal(0, 300.0, 3000), 10.0 ** rng.uniform(-12, 5, 3000)])
+    vals[::7] *= -1
+    toks = [f"{x:.16e}" for x in vals]
+    lines, vlines = [], []
+    for i in range(0, len(toks) - 5, 5):
+        lines.append(f"P {len(lines) + 1} 0 22 {' '.join(toks[i : i + 5])} 1")
+    for i in range(0, 400, 4):
+        vlines.append(f"V -{len(vlines) + 1} 0 [{len(vlines) + 1}] @ {' '.join(toks[i : i + 4])}")
+    text = (f"E 1 {len(vlines)} {len(lines)}\nU GEV MM\nW 1 2\n" + "\n".join(lines) + "\n"
+            + "\n".join(vlines) + "\n").encode()  # fmt: skip
+
+    def no_slow(*args: object) -> None:
+        raise AssertionError("a %.16e token went to the slow path")
+
+    monkeypatch.setattr(c, "fix_slow", no_slow)
+    arr = np.frombuffer(text, np.uint8)
+    got = scan_buffer(KERNEL, arr, 3, 2, True, 1 << 62, False)
+    assert got.status == c.ST_OK
+    want = np.array([float(t) for t in toks[: 5 * len(lines)]]).reshape(-1, 5).T
+    np.testing.assert_array_equal(got.p_f.view(np.int64), want.view(np.int64))
+    vwant = np.array([float(t) for t in toks[: 4 * len(vlines)]]).reshape(-1, 4).T
+    np.testing.assert_array_equal(got.v_f.view(np.int64), vwant.view(np.int64))

@@ -136,3 +136,22 @@ def test_fallback_bit_identical(tmp_path, monkeypatch):
     slow = _read_columns(path)
     assert np.array_equal(compiled.view(np.int64), slow.view(np.int64))
     assert np.array_equal(slow.view(np.int64), _reference(toks).view(np.int64))
+
+
+def test_sixteen_digit_exponent_values_need_no_slow_path(tmp_path, monkeypatch):
+    # %.16e (17 significant digits, the usual way to print a double exactly) is read by
+    # the compiled scanner itself, bit-identical to Python's float() (correctly rounded)
+    rng = np.random.default_rng(5)
+    vals = rng.standard_normal(7 * 3000) * 10.0 ** rng.integers(-6, 5, 7 * 3000)
+    toks = [f"{x:.16e}" for x in vals]
+    path = tmp_path / "e16.lhe"
+    _write(path, toks)
+    if lhe_mod._kernel()[1] != "numba":
+        pytest.skip("the compiled scanner is not in use")
+
+    def no_slow(*args):
+        raise AssertionError("a %.16e token went to the slow path")
+
+    monkeypatch.setattr(lhe_mod.c, "fix_slow_values", no_slow)
+    got = _read_columns(path)
+    assert np.array_equal(got.view(np.int64), _reference(toks).view(np.int64))

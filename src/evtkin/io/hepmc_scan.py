@@ -27,8 +27,11 @@ Errors stop at the start of the offending line (or of the event, for a count tha
 disagrees); ``cfg[CFG_LENIENT]`` rolls the event back instead, records it and resumes at
 the next line that starts with ``E ``. Floats are bit-identical to Python's ``float()``:
 a mantissa of at most 18 digits that is <= 2**53 with a decimal exponent within +-22 is
-converted by one correctly rounded operation; any other valid token is recorded in the
-slow list and converted in Python (:func:`fix_slow`). Never ``fastmath``.
+converted by one correctly rounded operation, any other mantissa of at most 18 digits
+(16-17 digit values printed with ``%.16e``, the common form of real files) by
+:func:`evtkin.io.exact_float.decimal_to_float`; a token neither decides (more digits, a
+rare tie) is recorded in the slow list and converted in Python (:func:`fix_slow`).
+Never ``fastmath``.
 
 Plain Asciiv3 ``P`` and ``V`` lines (nearly every line of a showered file) take a fast
 path first: one inline pass over the line's tokens (no helper calls, byte-class tables,
@@ -53,6 +56,8 @@ from collections.abc import Callable
 from typing import Any
 
 import numpy as np
+
+from evtkin.io.exact_float import decimal_to_float
 
 # ---- cfg (int64[8])
 CFG_FORM = 0  # 3 Asciiv3, 2 IO_GenEvent
@@ -291,16 +296,19 @@ def _float(buf: Arr, p: int, n: int) -> tuple[float, int, int, int]:
         return 0.0, s, _token_end(buf, p, n), 2
     if m == 0 and sig == 0:
         return (-0.0 if neg else 0.0), s, p, 0
-    if sig > 18 or big or m > _TWO53:  # (digits past the 18th were not summed)
+    if sig > 18 or big:  # (digits past the 18th were not summed)
         return np.nan, s, p, 1
     e10 = e + scale
-    if e10 < -22 or e10 > 22:
-        return np.nan, s, p, 1
-    x = float(m)
-    if e10 >= 0:  # noqa: SIM108 - (compiled code)
-        x = x * _POW10[e10]
+    if m > _TWO53 or e10 < -22 or e10 > 22:
+        x, exact = decimal_to_float(U(m), e10)
+        if not exact:
+            return np.nan, s, p, 1
     else:
-        x = x / _POW10[-e10]
+        x = float(m)
+        if e10 >= 0:  # noqa: SIM108 - (compiled code)
+            x = x * _POW10[e10]
+        else:
+            x = x / _POW10[-e10]
     return (-x if neg else x), s, p, 0
 
 
@@ -578,11 +586,17 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                             break
                         e10 += -ex if eneg else ex
                         c = buf[U(q)]
-                    if mant > _TWO53 or e10 < -22 or e10 > 22 or not _ENDS[c]:
+                    if not _ENDS[c]:
                         good = False
                         break
-                    x = np.float64(mant)
-                    x = x * _POW10[U(e10)] if e10 >= 0 else x / _POW10[U(-e10)]
+                    if mant <= _TWO53 and -22 <= e10 <= 22:
+                        x = np.float64(mant)
+                        x = x * _POW10[U(e10)] if e10 >= 0 else x / _POW10[U(-e10)]
+                    else:  # (16-17 digit values: %.16e)
+                        x, exact = decimal_to_float(U(mant), e10)
+                        if not exact:
+                            good = False
+                            break
                     p_f[U(d), U(npt)] = -x if neg else x
             if good:  # status
                 while _SEPS[buf[U(q)]]:
@@ -725,11 +739,17 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                                 good = False
                                 break
                             e10 += -ex if eneg else ex
-                        if mant > _TWO53 or e10 < -22 or e10 > 22 or not _ENDS[buf[U(q)]]:
+                        if not _ENDS[buf[U(q)]]:
                             good = False
                             break
-                        x = np.float64(mant)
-                        x = x * _POW10[U(e10)] if e10 >= 0 else x / _POW10[U(-e10)]
+                        if mant <= _TWO53 and -22 <= e10 <= 22:
+                            x = np.float64(mant)
+                            x = x * _POW10[U(e10)] if e10 >= 0 else x / _POW10[U(-e10)]
+                        else:
+                            x, exact = decimal_to_float(U(mant), e10)
+                            if not exact:
+                                good = False
+                                break
                         v_f[U(d), U(nv)] = -x if neg else x
                     if good:
                         while _SEPS[buf[U(q)]]:
@@ -1408,9 +1428,11 @@ def compiled_kernel() -> Callable[..., Any] | None:
             from numba import njit, types
 
             from evtkin._jit import deferred_extensions, lean_compile
+            from evtkin.io import exact_float
 
             jit = njit(nogil=True, cache=True, error_model="numpy")
             g = globals()
+            g["decimal_to_float"] = exact_float.jitted()
             for name in _HELPERS:
                 g[name] = jit(g[name])
             kern = jit(scan_kernel_source)

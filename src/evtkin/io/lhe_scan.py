@@ -27,7 +27,9 @@ kernel; keeping them out of the kernel's body makes it (and its compile time) sm
 Floats are bit-identical to Python's ``float()`` on the same text: a decimal mantissa of
 at most 18 digits that is <= 2**53, with a decimal exponent within +-22, is converted
 with a single correctly rounded multiplication or division by an exactly representable
-power of ten. Any other token (more digits, larger exponents, ``nan``, a Fortran
+power of ten; other mantissas of at most 18 digits (16-17 digit values printed with
+``%.16e``, large exponents) by :func:`evtkin.io.exact_float.decimal_to_float` (a 128-bit
+product, correctly rounded, or "undecided"). Any other token (more digits, ``nan``, a Fortran
 exponent without a letter such as ``1.0+120``, or garbage) is recorded in a "slow list"
 (target column, row, token span) and converted afterwards in Python by
 :func:`fix_slow_values`, which also reports tokens that are not numbers. Fortran ``D``
@@ -75,6 +77,8 @@ from collections.abc import Callable
 from typing import Any
 
 import numpy as np
+
+from evtkin.io.exact_float import decimal_to_float
 
 __all__ = [
     "ERR_MESSAGES",
@@ -705,10 +709,17 @@ def scan_kernel_source(  # one state machine on purpose (see module docstring)
                             nd = 0
                 k = fi - ni
                 fi += 1
-                if nd > 0 and nd <= 18 and mant <= _TWO53 and e10 >= -22 and e10 <= 22:
-                    v = np.float64(mant)
-                    # one correctly rounded operation with an exact power of ten
-                    v = v * P10[U(e10)] if e10 >= 0 else v / P10[U(-e10)]
+                exact = False
+                v = nan
+                if nd > 0 and nd <= 18:
+                    if mant <= _TWO53 and e10 >= -22 and e10 <= 22:
+                        v = np.float64(mant)
+                        # one correctly rounded operation with an exact power of ten
+                        v = v * P10[U(e10)] if e10 >= 0 else v / P10[U(-e10)]
+                        exact = True
+                    else:  # 16-18 digits (%.16e) or a large exponent
+                        v, exact = decimal_to_float(U(mant), e10)
+                if exact:
                     if neg:
                         v = -v
                     slow_token = False
@@ -1102,9 +1113,11 @@ def compiled_kernel() -> Callable[..., Any] | None:
             from numba import njit, types
 
             from evtkin._jit import deferred_extensions, lean_compile, lean_pipeline
+            from evtkin.io import exact_float
 
             jit = njit(nogil=True, cache=True, error_model="numpy", pipeline_class=lean_pipeline())
             g = globals()
+            g["decimal_to_float"] = exact_float.jitted()
             for name in _HELPERS:  # the kernel calls the compiled helpers
                 g[name] = jit(g[name])
             kernel = jit(scan_kernel_source)
