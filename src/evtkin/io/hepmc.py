@@ -29,6 +29,7 @@ and two chunks: flat in the file size.
 from __future__ import annotations
 
 import mmap
+import os
 import queue
 import sys
 import threading
@@ -61,6 +62,8 @@ __all__ = ["HepMCWarning", "hepmc_byte_ranges", "read_hepmc", "scanner_kind"]
 BUFFER_BYTES = 4 << 20
 CHUNK_TEXT_BYTES = 16 << 20
 MAX_AUTO_STEP = 100_000
+_PRIVATE = mmap.MAP_PRIVATE | mmap.MAP_ANONYMOUS
+MAP_PLAIN = True  # plain files: scan views of the mapped file (False: read into buffers)
 PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
                    "px", "py", "pz", "energy", "mass")  # fmt: skip
 VERTEX_FIELDS = ("status", "x", "y", "z", "t")
@@ -107,8 +110,9 @@ def _block(nbytes: int) -> np.ndarray:
     """``nbytes`` of fresh memory as a ``uint8`` array: an anonymous memory map of its own,
     returned to the system when the last view of it goes. Not ``np.empty``: freed large
     arrays raise the C allocator's mapping threshold, and the next ones then come from
-    (per-thread) heaps that keep their pages: peak RSS grew by ~200 MB with two threads."""
-    return np.frombuffer(mmap.mmap(-1, max(int(nbytes), 1)), dtype=np.uint8)
+    (per-thread) heaps that keep their pages: peak RSS grew by ~200 MB with two threads.
+    Private, not shared: first touching a page of shared memory measured ~1.5x slower."""
+    return np.frombuffer(mmap.mmap(-1, max(int(nbytes), 1), flags=_PRIVATE), dtype=np.uint8)
 
 
 Layout = list[tuple[tuple[int, ...], Any]]
@@ -414,7 +418,7 @@ class _Buffers:
             try:
                 buf = self.free.get_nowait()
             except queue.Empty:
-                return mmap.mmap(-1, size)  # (see _block)
+                return mmap.mmap(-1, size, flags=_PRIVATE)  # (see _block)
             if len(buf) >= size:
                 return buf
 
@@ -457,6 +461,61 @@ class _Buffers:
         else:
             self.items.close()  # type: ignore[attr-defined]
         self.stream.close()
+
+
+class _MappedBuffers:
+    """The buffers of a plain file: views of the file mapped into memory, no copy (same
+    ``get()`` as :class:`_Buffers`, in the caller's thread: mapping a window and finding
+    its last ``E`` line costs microseconds). Each buffer is a map of its own (private,
+    so that its view is writable like a read buffer and the scanner sees one array type),
+    unmapped when its last view goes: the mapped pages of the file counted in the resident
+    memory stay a few buffers' worth. The maps are marked sequential (the kernel reads
+    ahead of a scan in a file not in the page cache). Measured against reading into
+    buffers (200 MB file, CPU time): 7% less CPU in the page cache, 35% less cold."""
+
+    def __init__(self, source: Source, start: int, stop: int) -> None:
+        self.fh = open(source, "rb")  # noqa: SIM115 - closed in close()
+        self.items = self._produce(start, stop)
+
+    def _produce(self, pos: int, size: int) -> Iterator[tuple[int, np.ndarray, bool, Any]]:
+        fd = self.fh.fileno()
+        advise = getattr(os, "posix_fadvise", None)
+        if advise is not None:
+            advise(fd, pos, 0, os.POSIX_FADV_SEQUENTIAL)
+        want = BUFFER_BYTES
+        while True:
+            end = min(pos + want, size)
+            if end <= pos:
+                yield pos, np.zeros(0, np.uint8), True, None
+                return
+            lo = pos - pos % mmap.ALLOCATIONGRANULARITY
+            mm = mmap.mmap(fd, end - lo, access=mmap.ACCESS_COPY, offset=lo)
+            mm.madvise(mmap.MADV_SEQUENTIAL)
+            if end >= size:
+                yield pos, np.frombuffer(mm, np.uint8, count=end - pos, offset=pos - lo), True, None
+                return
+            cut = mm.rfind(_CUT, pos - lo + 1, end - lo) + 1
+            if cut <= 0:  # one event larger than the window: map a larger one
+                want *= 2
+                continue
+            want = BUFFER_BYTES
+            yield (
+                pos,
+                np.frombuffer(mm, np.uint8, count=cut - (pos - lo), offset=pos - lo),
+                False,
+                None,
+            )
+            pos = lo + cut
+
+    def get(self) -> tuple[int, np.ndarray, bool, Any]:
+        return next(self.items)
+
+    def recycle(self, arr: np.ndarray) -> None:
+        pass
+
+    def close(self) -> None:
+        self.items.close()  # type: ignore[attr-defined]
+        self.fh.close()
 
 
 class _Done:
@@ -663,6 +722,7 @@ def _iterate(
     offset = int(run["offset"])
     stop_abs = 1 << 62
     base = offset
+    mapped = MAP_PLAIN and stream.kind is None
     if byte_range is not None:
         stream.close()
         with open(source, "rb") as fh:
@@ -679,9 +739,6 @@ def _iterate(
             begin = _next_event(fh, start, stop_abs)
         if begin < 0:
             return
-        plain = open(source, "rb")  # noqa: SIM115 - closed by the reader
-        plain.seek(begin)
-        stream = TolerantStream(plain, source, None)  # type: ignore[arg-type]
         first, base = b"", begin
         need_end = byte_range[1] >= size
     else:
@@ -693,7 +750,16 @@ def _iterate(
         wnames = _weight_names(form, run, first)
         k = len(wnames)
         need_end = True
-    reader = _Buffers(stream, first, base, source, threaded=threads > 0)
+    reader: _Buffers | _MappedBuffers
+    if mapped:
+        stream.close()
+        reader = _MappedBuffers(source, base, file_size(source))
+    else:
+        if byte_range is not None:
+            plain = open(source, "rb")  # noqa: SIM115 - closed by the reader
+            plain.seek(base)
+            stream = TolerantStream(plain, source, None)
+        reader = _Buffers(stream, first, base, source, threaded=threads > 0)
     pool = (ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-hepmc-parse")
             if threads > 0 else None)  # fmt: skip
 
@@ -823,7 +889,7 @@ def _iterate(
 
 
 def _check_after_end(source: Source, name: str, pos: int, rest: np.ndarray,
-                     later: list[np.ndarray], final: bool, reader: _Buffers,
+                     later: list[np.ndarray], final: bool, reader: _Buffers | _MappedBuffers,
                      strict: bool) -> None:  # fmt: skip
     """After the END_EVENT_LISTING line: only blank text (or a problem)."""
     text = bytes(rest)
