@@ -25,6 +25,7 @@ import os
 import shutil
 import time
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -91,6 +92,25 @@ def pieces(text: bytes, cut: bytes, size: int = 4 << 20) -> list[np.ndarray]:
     return out
 
 
+def kernel_arrays(c: Any, nbytes: int, k: int) -> tuple[tuple[np.ndarray, ...], np.ndarray,
+                                                        np.ndarray]:  # fmt: skip
+    """The scanner's output columns for ``nbytes`` of Asciiv3 text with ``k`` weights, its
+    ``cfg`` (a final buffer, no stop) and ``st`` arrays."""
+    cap = c.capacities(nbytes)
+    ce, cp, cv = cap["events"], cap["particles"], cap["vertices"]
+    arrays = (
+        np.empty((c.N_EVI, ce), np.int64), np.empty((c.N_EVF, ce)), np.empty(ce + 1, np.int64),
+        np.empty(ce + 1, np.int64), np.empty((c.N_PI, cp), np.int32), np.empty((c.N_PF, cp)),
+        np.empty(cv, np.int32), np.empty((c.N_VF, cv)), np.empty(cap["weights"]),
+        np.empty((3, cp), np.int64), np.empty((4, cv), np.int64),
+        np.empty(cap["incoming"], np.int64), np.empty((cap["slow"], 5), np.int64),
+        np.empty((cap["errors"], 6), np.int64),
+    )  # fmt: skip
+    cfg = np.zeros(c.CFG_SIZE, np.int64)
+    cfg[c.CFG_FORM], cfg[c.CFG_K], cfg[c.CFG_FINAL], cfg[c.CFG_STOP] = 3, k, 1, 1 << 62
+    return arrays, cfg, np.zeros(c.ST_SIZE, np.int64)
+
+
 def kernel_rates(big: Path, repeat: int) -> tuple[list[float], list[float]]:
     """MB/s of the HepMC kernel and of the LHE kernel, one thread, CPU time, ``repeat``
     interleaved passes each."""
@@ -101,20 +121,7 @@ def kernel_rates(big: Path, repeat: int) -> tuple[list[float], list[float]]:
     text = text[text.index(b"\nE ") + 1 : text.rindex(b"\nE ") + 1]
     hp = pieces(text, b"\nE ")
     kern = c.compiled_kernel()
-    cap = c.capacities(max(p.shape[0] for p in hp))
-    ce, cp, cv = cap["events"], cap["particles"], cap["vertices"]
-    arrays = (
-        np.empty((c.N_EVI, ce), np.int64), np.empty((c.N_EVF, ce)), np.empty(ce + 1, np.int64),
-        np.empty(ce + 1, np.int64), np.empty((c.N_PI, cp), np.int32), np.empty((c.N_PF, cp)),
-        np.empty(cv, np.int32), np.empty((c.N_VF, cv)), np.empty(cap["weights"]),
-        np.empty((3, cp), np.int64), np.empty((4, cv), np.int64),
-        np.empty(cap["incoming"], np.int64), np.empty((cap["slow"], 5), np.int64),
-        np.empty((cap["errors"], 6), np.int64),
-    )  # fmt: skip
-    k = 27
-    cfg = np.zeros(c.CFG_SIZE, np.int64)
-    cfg[c.CFG_FORM], cfg[c.CFG_K], cfg[c.CFG_FINAL], cfg[c.CFG_STOP] = 3, k, 1, 1 << 62
-    st = np.zeros(c.ST_SIZE, np.int64)
+    arrays, cfg, st = kernel_arrays(c, max(p.shape[0] for p in hp), k=27)
     assert kern is not None
 
     def hepmc_pass() -> float:
