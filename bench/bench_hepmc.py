@@ -1,7 +1,7 @@
 """Benchmark of the HepMC reader against a bare line scan and a raw read of the same file,
 in one run.
 
-    python bench/bench_hepmc.py [--mb 300] [--repeat 3] [--out-dir /tmp] [--rss 1000,3000]
+    python bench/bench_hepmc.py [--mb 300] [--repeat 3] [--out-dir /tmp] [--rss 1000,3000] [--e16]
 
 Makes (once) a big Asciiv3 file by repeating the events of the shipped toy shower sample
 (samples/toy_ttbar_shower.hepmc.gz) until it holds ``--mb`` MB of text, and its gzip.
@@ -13,6 +13,8 @@ bytes, the reader with 0, 1 and 2 parse threads, the reader on the gzip file, th
 decompression (``isal.igzip`` ``readinto``), and the peak RSS of each process. Then the
 compiled scanners alone, on in-memory 4 MB pieces, one thread, CPU time, interleaved: the
 HepMC kernel vs the LHE kernel (on the LHE toy sample's events repeated to the same size).
+``--e16``: the same events with their momenta printed as ``%.16e`` (17 significant digits,
+as real generator files print doubles; the LHE text of the scanner comparison too).
 ``--rss 1000,3000`` reads files of those sizes (MB; made in ``--out-dir`` and deleted
 afterwards) with the default options and prints their peak RSS: flat in the file size?
 """
@@ -52,15 +54,35 @@ report(time.perf_counter() - t0, n, time.process_time() - c0)
 """
 
 
-def make_files(out_dir: Path, mb: int, with_gzip: bool = True) -> tuple[Path, Path, Path]:
-    big = out_dir / f"evtkin_bench_{mb}MB.hepmc"
-    gz = out_dir / f"evtkin_bench_{mb}MB.hepmc.gz"
-    tiny = out_dir / "evtkin_bench_tiny.hepmc"
+def as_e16(text: bytes) -> bytes:
+    """The ``P`` lines' five momentum fields (LHE: a particle line's seven floats)
+    rewritten as ``%.16e`` (17 significant digits: how real files print doubles)."""
+    out = []
+    for line in text.split(b"\n"):
+        t = line.split()
+        if line.startswith(b"P "):
+            t[4:9] = [b"%.16e" % float(x) for x in t[4:9]]
+            line = b" ".join(t)
+        elif len(t) == 13 and not line.startswith(b"<"):
+            t[6:13] = [b"%.16e" % float(x) for x in t[6:13]]
+            line = b" ".join(t)
+        out.append(line)
+    return b"\n".join(out)
+
+
+def make_files(out_dir: Path, mb: int, with_gzip: bool = True,
+               e16: bool = False) -> tuple[Path, Path, Path]:  # fmt: skip
+    tag = "_e16" if e16 else ""
+    big = out_dir / f"evtkin_bench_{mb}MB{tag}.hepmc"
+    gz = out_dir / f"evtkin_bench_{mb}MB{tag}.hepmc.gz"
+    tiny = out_dir / f"evtkin_bench_tiny{tag}.hepmc"
     if not big.exists() or big.stat().st_mtime < SAMPLE.stat().st_mtime:
         text = gzip.decompress(SAMPLE.read_bytes())
         start = text.index(b"\nE ") + 1
         end = text.index(b"HepMC::Asciiv3-END_EVENT_LISTING")
         head, body = text[:start], text[start:end]
+        if e16:
+            body = as_e16(body)
         copies = max(1, (mb << 20) // len(body))
         with open(big, "wb") as fh:
             fh.write(head)
@@ -111,7 +133,7 @@ def kernel_arrays(c: Any, nbytes: int, k: int) -> tuple[tuple[np.ndarray, ...], 
     return arrays, cfg, np.zeros(c.ST_SIZE, np.int64)
 
 
-def kernel_rates(big: Path, repeat: int) -> tuple[list[float], list[float]]:
+def kernel_rates(big: Path, repeat: int, e16: bool = False) -> tuple[list[float], list[float]]:
     """MB/s of the HepMC kernel and of the LHE kernel, one thread, CPU time, ``repeat``
     interleaved passes each."""
     from evtkin.io import hepmc_scan as c
@@ -135,6 +157,8 @@ def kernel_rates(big: Path, repeat: int) -> tuple[list[float], list[float]]:
     a = lhe_text.index(b"<event")
     b = lhe_text.rindex(b"</event>") + len(b"</event>\n")
     body = lhe_text[a:b]
+    if e16:
+        body = as_e16(body)
     body = body * max(1, len(text) // len(body))
     lp = pieces(body, b"</event>\n")
     info = lhe.lhe_info(LHE_SAMPLE)
@@ -180,16 +204,19 @@ def main() -> None:
                     help="comma-separated file sizes in MB (e.g. 1000,3000): peak RSS of a "
                     "default read of each (files made and deleted here)")  # fmt: skip
     ap.add_argument("--skip-rates", action="store_true", help="only the --rss figures")
+    ap.add_argument("--e16", action="store_true",
+                    help="momenta printed with %%.16e (17 significant digits, as real files "
+                    "print doubles), also in the LHE text of the scanner comparison")  # fmt: skip
     args = ap.parse_args()
     out_dir = Path(args.out_dir)
     if not args.skip_rates:
-        rates(out_dir, args.mb, args.repeat)
+        rates(out_dir, args.mb, args.repeat, args.e16)
     if args.rss:
         rss_growth(out_dir, [int(x) for x in args.rss.split(",")])
 
 
-def rates(out_dir: Path, mb: int, repeat: int) -> None:
-    big, gz, tiny = make_files(out_dir, mb)
+def rates(out_dir: Path, mb: int, repeat: int, e16: bool = False) -> None:
+    big, gz, tiny = make_files(out_dir, mb, e16=e16)
     size = big.stat().st_size
     print(f"file {big} ({size / 1e6:.0f} MB; gzip {gz.stat().st_size / 1e6:.0f} MB); "
           f"load average {os.getloadavg()[0]:.2f}; {repeat} interleaved rounds")  # fmt: skip
@@ -214,7 +241,7 @@ def rates(out_dir: Path, mb: int, repeat: int) -> None:
         print(f"{label:34s} {rate:6.0f} {base['seconds'] / r['seconds']:12.2f} "
               f"{base['median'] / r['median']:9.2f} {cpu} {r['rss_mb']:12.0f}")  # fmt: skip
     print(f"load average after: {os.getloadavg()[0]:.2f}")
-    rh, rl = kernel_rates(big, max(repeat, 3))
+    rh, rl = kernel_rates(big, max(repeat, 3), e16)
     ratios = sorted(h / lr for h, lr in zip(rh, rl, strict=True))
     print(f"compiled scanners alone, one thread (CPU time, {len(rh)} interleaved passes): HepMC "
           f"best {max(rh):.0f} MB/s, LHE best {max(rl):.0f} MB/s, ratio of bests "

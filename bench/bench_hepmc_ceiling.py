@@ -37,7 +37,7 @@ from pathlib import Path
 
 import numpy as np
 
-from bench_hepmc import kernel_arrays, make_files
+from bench_hepmc import as_e16, kernel_arrays, make_files
 
 
 def _kernels() -> dict[str, Callable[[np.ndarray], int]]:
@@ -88,22 +88,6 @@ def _kernels() -> dict[str, Callable[[np.ndarray], int]]:
             "token walk": token_walk}  # fmt: skip
 
 
-def _as_e16(text: bytes) -> bytes:
-    """The ``P`` lines' five momentum fields (LHE: a particle line's seven floats)
-    rewritten as ``%.16e``."""
-    out = []
-    for line in text.split(b"\n"):
-        t = line.split()
-        if line.startswith(b"P "):
-            t[4:9] = [b"%.16e" % float(x) for x in t[4:9]]
-            line = b" ".join(t)
-        elif len(t) == 13 and not line.startswith(b"<"):
-            t[6:13] = [b"%.16e" % float(x) for x in t[6:13]]
-            line = b" ".join(t)
-        out.append(line)
-    return b"\n".join(out)
-
-
 def _lhe_scanner(size: int, e16: bool) -> Callable[[np.ndarray], int]:
     """A pass of the LHE scanner over the toy LHE sample's events repeated to ``size``."""
     from bench_hepmc import LHE_SAMPLE, pieces
@@ -112,7 +96,7 @@ def _lhe_scanner(size: int, e16: bool) -> Callable[[np.ndarray], int]:
     text = gzip.decompress(LHE_SAMPLE.read_bytes())
     body = text[text.index(b"<event") : text.rindex(b"</event>") + len(b"</event>\n")]
     if e16:
-        body = _as_e16(body)
+        body = as_e16(body)
     lp = pieces(body * max(1, size // len(body)), b"</event>\n")
     info = lhe.lhe_info(LHE_SAMPLE)
     kernel, _ = lhe._kernel()
@@ -140,7 +124,7 @@ def main() -> None:
     text = big.read_bytes()[: args.mb << 20]
     text = text[text.index(b"\nE ") + 1 : text.rindex(b"\nE ") + 1]
     if args.e16:
-        text = _as_e16(text)
+        text = as_e16(text)
     buf = np.frombuffer(text, np.uint8).copy()
     kern = c.compiled_kernel()
     assert kern is not None, "numba is needed"
