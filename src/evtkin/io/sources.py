@@ -88,7 +88,10 @@ def detect_compression(path: Source) -> str | None:
     return None
 
 
-_CHUNK = 1 << 18  # compressed bytes fed per step
+# compressed bytes fed per step: enough that one step of gzip fills a 4 MB read (ISA-L
+# decompression through this stream measured 478 MB/s with 1 MB steps, 599 with 2 MB, as
+# fast as isal.igzip's own readinto)
+_CHUNK = 1 << 21
 _ZSTD_CHUNK = 1 << 12  # zstd's decoder has no output limit: small steps bound its output
 
 
@@ -211,7 +214,8 @@ class _Decompressing(io.RawIOBase):
                 self._end = True
                 return 0
         k = min(len(buffer), len(self._out) - self._opos)
-        buffer[:k] = self._out[self._opos : self._opos + k]
+        with memoryview(self._out) as out:  # (no copy of the slice before the copy)
+            buffer[:k] = out[self._opos : self._opos + k]
         self._opos += k
         self._total += k
         return k
