@@ -203,3 +203,46 @@ def test_chunks_dropped_while_streaming_reuse_their_memory(
     want = [float(np.sum(ak.to_numpy(ak.flatten(ref.particles.px[i : i + 5]))))
             for i in range(0, 150, 5)]  # fmt: skip
     assert px_sums == want
+
+
+def test_later_reads_reuse_memory_but_never_held_chunks(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    path, _ = _events_file(tmp_path)
+    other = tmp_path / "other.hepmc"
+    evtkin.write_hepmc(other, random_events(150, seed=99), weight_names=NAMES)
+    monkeypatch.setattr(hepmc, "_SPARE", [])
+    monkeypatch.setattr(hepmc, "BUFFER_BYTES", 3000)
+    held = list(evtkin.read_hepmc(path, step_size=40, threads=0))
+    snapshot = [ak.to_list(c) for c in held]  # (copies, as Python objects)
+    made: list[int] = []
+    fresh = hepmc._block
+
+    def counting(nbytes: int) -> np.ndarray:
+        made.append(nbytes)
+        return fresh(nbytes)
+
+    monkeypatch.setattr(hepmc, "_block", counting)
+    # the chunks of the first read are held: the second read cannot have their blocks
+    for chunk in evtkin.read_hepmc(other, step_size=40, threads=0):
+        del chunk
+    assert [ak.to_list(c) for c in held] == snapshot
+    assert len(made) >= 1  # (a chunk block of its own)
+    # with nothing held, a third read takes its scratch and chunk blocks from those kept
+    del held
+    fresh_takes: list[int] = []
+    take = hepmc._take_block
+
+    def spying(nbytes: int, extra: int = 0) -> np.ndarray:
+        kept = {id(b) for b in hepmc._SPARE}
+        block = take(nbytes, extra)
+        if id(block) not in kept:
+            fresh_takes.append(nbytes)
+        return block
+
+    monkeypatch.setattr(hepmc, "_take_block", spying)
+    for step in (40, 7):  # (each chunk dropped before the next: no block is held)
+        numbers = [n for c in evtkin.read_hepmc(other, step_size=step, threads=0)
+                   for n in c.event_number.tolist()]  # fmt: skip
+        assert numbers == list(range(1, 151))
+    assert fresh_takes == []
