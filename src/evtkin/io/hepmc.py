@@ -2,10 +2,17 @@
 
 Pipeline (one run of :func:`read_hepmc`), as for LHE files (:mod:`evtkin.io.lhe`)::
 
-    reader thread              parse workers (1-2, nogil)        caller's thread
-    read/decompress  ------>   byte scanner -> columns    --->   chunks of exactly
-    4 MB buffers cut before    (compiled, or the Python          step_size events,
-    a line starting "E "       fallback), compacted              zero-copy awkward layout
+    buffers of ~4 MB cut       parse workers (1-2, nogil)        caller's thread
+    before a line "E "  --->   byte scanner -> columns    --->   copies the columns into
+    plain file: mapped views   (compiled, or the Python          chunks of exactly
+    compressed: a reader       fallback), one scratch per        step_size events,
+    thread decompresses        buffer in flight                  zero-copy awkward layout
+
+A plain file (or a byte-range unit) is never read into buffers: each buffer is a view of
+a window of the file mapped into memory (:class:`_MappedBuffers`), made in the caller's
+thread. ``threads=0`` does everything in the caller's thread. Memory blocks (scratch,
+chunk columns) are reused once no view of them is left, and kept for the next read in
+the process (:data:`SPARE_BLOCKS`).
 
 Each chunk is an awkward Array with one record per event: ``event_number`` (int64),
 ``weight`` (the first weight; 1 for an event without weights), ``weights`` (regular
@@ -719,8 +726,9 @@ def read_hepmc(
     Every chunk holds exactly ``step_size`` events except the last. ``step_size=None``
     (the default) takes as many events as fit in ~16 MB of text, judged from the first
     4 MB read (at most 100 000). ``threads``: parse threads (default 2 where there are
-    cores for them, 1 for a compressed file on 2 cores) beside a thread that reads;
-    ``threads=0`` does everything in the caller's thread. ``byte_range=(start, stop)``
+    cores for them, 1 for a compressed file on 2 cores), beside a thread that decompresses
+    a compressed file (a plain file is memory-mapped); ``threads=0`` does everything in
+    the caller's thread. ``byte_range=(start, stop)``
     (plain files only) reads exactly the events whose ``E`` line starts in
     ``[start, stop)`` (see :func:`hepmc_byte_ranges`).
 
