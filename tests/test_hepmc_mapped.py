@@ -246,3 +246,15 @@ def test_later_reads_reuse_memory_but_never_held_chunks(
                    for n in c.event_number.tolist()]  # fmt: skip
         assert numbers == list(range(1, 151))
     assert fresh_takes == []
+
+
+def test_header_only_and_empty_listing(tmp_path: Path, mapped: bool) -> None:
+    path = tmp_path / "h.hepmc"
+    head = b"HepMC::Version 3.02.00\nHepMC::Asciiv3-START_EVENT_LISTING\nW nominal muR2\n"
+    path.write_bytes(head)  # no event and no END line: nothing after the header
+    kind, msg, _ = _outcome(path)
+    assert kind == "error"
+    assert "without the END_EVENT_LISTING line after 0 complete events" in msg
+    # an event listing with no events: no chunk, no complaint
+    path.write_bytes(head + b"HepMC::Asciiv3-END_EVENT_LISTING\n")
+    assert _outcome(path) == ("ok", None, [])

@@ -69,7 +69,9 @@ __all__ = ["HepMCWarning", "hepmc_byte_ranges", "read_hepmc", "scanner_kind"]
 BUFFER_BYTES = 4 << 20
 CHUNK_TEXT_BYTES = 16 << 20
 MAX_AUTO_STEP = 100_000
-_PRIVATE = mmap.MAP_PRIVATE | mmap.MAP_ANONYMOUS
+_PRIVATE = (mmap.MAP_PRIVATE | getattr(mmap, "MAP_ANONYMOUS", getattr(mmap, "MAP_ANON", 0))
+            if hasattr(mmap, "MAP_PRIVATE") else None)  # fmt: skip
+_SEQUENTIAL = getattr(mmap, "MADV_SEQUENTIAL", None)
 MAP_PLAIN = True  # plain files: scan views of the mapped file (False: read into buffers)
 PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
                    "px", "py", "pz", "energy", "mass")  # fmt: skip
@@ -119,7 +121,13 @@ def _block(nbytes: int) -> np.ndarray:
     arrays raise the C allocator's mapping threshold, and the next ones then come from
     (per-thread) heaps that keep their pages: peak RSS grew by ~200 MB with two threads.
     Private, not shared: first touching a page of shared memory measured ~1.5x slower."""
-    return np.frombuffer(mmap.mmap(-1, max(int(nbytes), 1), flags=_PRIVATE), dtype=np.uint8)
+    return np.frombuffer(_anonymous(max(int(nbytes), 1)), dtype=np.uint8)
+
+
+def _anonymous(nbytes: int) -> mmap.mmap:
+    if _PRIVATE is None:  # (no MAP_PRIVATE: not a POSIX system)
+        return mmap.mmap(-1, nbytes)
+    return mmap.mmap(-1, nbytes, flags=_PRIVATE)
 
 
 #: free blocks kept from finished reads for the next ones in the process (the run layer
@@ -458,7 +466,7 @@ class _Buffers:
             try:
                 buf = self.free.get_nowait()
             except queue.Empty:
-                return mmap.mmap(-1, size, flags=_PRIVATE)  # (see _block)
+                return _anonymous(size)  # (see _block)
             if len(buf) >= size:
                 return buf
 
@@ -533,7 +541,8 @@ class _MappedBuffers:
                 return
             lo = pos - pos % mmap.ALLOCATIONGRANULARITY
             mm = mmap.mmap(fd, end - lo, access=mmap.ACCESS_COPY, offset=lo)
-            mm.madvise(mmap.MADV_SEQUENTIAL)
+            if _SEQUENTIAL is not None:
+                mm.madvise(_SEQUENTIAL)
             if end >= size:
                 yield pos, np.frombuffer(mm, np.uint8, count=end - pos, offset=pos - lo), True, None
                 return
