@@ -62,3 +62,32 @@ def test_written_files_get_the_mode_open_gives(tmp_path: Path) -> None:
     os.chmod(made, 0o640)
     atomic_write_text(made, "y")
     assert stat.S_IMODE(made.stat().st_mode) == 0o640
+
+
+def test_a_symlinked_target_stays_a_link(tmp_path: Path) -> None:
+    # POSIX rename(2) replaces the link itself, so the write has to go to what it points to
+    data = tmp_path / "data"
+    data.mkdir()
+    real = data / "out.json"
+    real.write_text("old")
+    os.chmod(real, 0o640)
+    link = tmp_path / "out.json"
+    link.symlink_to(os.path.relpath(real, tmp_path))  # relative, as users often make them
+    assert atomic_write_text(link, "new") == link
+    assert link.is_symlink()
+    assert real.read_text() == "new"
+    assert stat.S_IMODE(real.stat().st_mode) == 0o640  # the target's mode, as open() keeps it
+    assert sorted(p.name for p in data.iterdir()) == ["out.json"]  # no temporary left
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["data", "out.json"]
+    # a chain of links, and a link whose target does not exist yet (open() would create it)
+    chain = tmp_path / "chain.json"
+    chain.symlink_to(link)
+    atomic_write_bytes(chain, b"third")
+    assert chain.is_symlink()
+    assert link.is_symlink()
+    assert real.read_bytes() == b"third"
+    dangling = tmp_path / "later.json"
+    dangling.symlink_to(data / "later.json")
+    atomic_write_text(dangling, "made")
+    assert dangling.is_symlink()
+    assert (data / "later.json").read_text() == "made"

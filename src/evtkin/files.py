@@ -40,8 +40,11 @@ def safe_name(name: str) -> str:
 def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
     """A temporary path beside ``path`` (same suffix, hidden name) for a writer that needs a
     path (matplotlib, uproot); renamed onto ``path`` when the block ends without an error,
-    removed otherwise. The folder is created if needed."""
+    removed otherwise. The folder is created if needed. A symlinked ``path`` stays a link:
+    the file it points to is written (the temporary file beside that one)."""
     p = Path(path)
+    if p.is_symlink():  # a rename onto the link would replace it by a plain file
+        p = Path(os.path.realpath(p))
     p.parent.mkdir(parents=True, exist_ok=True)
     fd, name = tempfile.mkstemp(prefix=f".{p.name}.", suffix=f".tmp{p.suffix}", dir=p.parent)
     try:
