@@ -258,3 +258,36 @@ def test_header_only_and_empty_listing(tmp_path: Path, mapped: bool) -> None:
     # an event listing with no events: no chunk, no complaint
     path.write_bytes(head + b"HepMC::Asciiv3-END_EVENT_LISTING\n")
     assert _outcome(path) == ("ok", None, [])
+
+
+def _overwrite_kept_blocks(queue: Any) -> None:
+    """(In a forked child) take every kept block and write 7s into its first page."""
+    before = len(hepmc._SPARE)
+    for _ in range(before):
+        block = hepmc._take_block(1)
+        block[:4096] = 7
+        del block
+    queue.put(before - len(hepmc._SPARE))  # (the kept blocks taken, not fresh ones)
+
+
+def test_kept_blocks_are_not_shared_with_forked_processes(tmp_path: Path) -> None:
+    import multiprocessing
+
+    path, _ = _events_file(tmp_path)
+    for _chunk in evtkin.read_hepmc(path, threads=0):
+        pass
+    del _chunk
+    n_kept = len(hepmc._SPARE)
+    assert n_kept >= 1
+    for i in range(n_kept):  # (by index: a reference held here would keep them from reuse)
+        hepmc._SPARE[i][:4096] = 3
+    # POSIX fork: private pages are copied on write (MAP_PRIVATE), shared ones are not
+    ctx = multiprocessing.get_context("fork")
+    queue = ctx.Queue()
+    child = ctx.Process(target=_overwrite_kept_blocks, args=(queue,))
+    child.start()
+    assert queue.get(timeout=60) == n_kept  # the child did take and overwrite them all
+    child.join(timeout=60)
+    assert child.exitcode == 0
+    assert len(hepmc._SPARE) == n_kept
+    assert all(int(hepmc._SPARE[i][:4096].max()) == 3 for i in range(n_kept))

@@ -155,7 +155,9 @@ def _take_block(nbytes: int, extra: int = 0) -> np.ndarray:
 
 
 def _keep_blocks(blocks: list[np.ndarray]) -> None:
-    """Keep ``blocks`` for later reads (taken only once no view of them is left)."""
+    """Keep ``blocks`` for later reads (taken only once no view of them is left). They are
+    private maps: a process forked later (the run layer's workers) writes into copies of
+    their pages, never into its parent's or a sibling's."""
     with _SPARE_LOCK:
         _SPARE.extend(blocks)
         del _SPARE[: max(0, len(_SPARE) - SPARE_BLOCKS)]
