@@ -130,3 +130,32 @@ def test_response_config_errors():
     del no_truth["samples"]["tt"]["truth_files"]
     with pytest.raises(ConfigError, match="no sample of this histogram has truth_files"):
         load_config(no_truth)
+
+
+def test_response_plot_names_the_sample_by_its_label(tmp_path):
+    import matplotlib
+
+    from evtkin.hists.response import Response
+    from evtkin.output.responses import plot_responses
+
+    n = 3
+    m = np.zeros((n + 2, n + 2))
+    m[1:-1, 1:-1] = [[8.0, 2.0, 0.0], [1.0, 6.0, 1.0], [0.0, 1.0, 5.0]]
+    truth = m.sum(axis=1) + 1.0
+    reco = m.sum(axis=0) + 0.5
+    r = Response("m_tt", np.array([300.0, 450.0, 600.0, 800.0]), "m_{tt̄}", "GeV", m, m,
+                 truth, truth, reco, reco)
+    # SVG with text kept as text (matplotlib's svg.fonttype "none"): the words can be read back
+    with matplotlib.rc_context({"svg.fonttype": "none"}):
+        (path,) = plot_responses(tmp_path, {"tt_cfg": {"m_tt": r}}, formats=("svg",),
+                                 labels={"tt_cfg": "Top pairs (toy)"}, corner="√s = 13 TeV",
+                                 levels={"tt_cfg": ("parton level", "particle level")})
+    assert path.name == "response_tt_cfg_m_tt.svg"  # the file keeps the config name
+    svg = path.read_text(encoding="utf-8")
+    # the corner shows the label as the 2-D plots do (plots.plot_hist2d), not the config name
+    assert "Top pairs (toy), √s = 13 TeV" in svg
+    assert "tt_cfg" not in svg
+    # axis titles and legend entries capitalised like the other plots' ("Events", "Fraction")
+    for word in ("Fraction", "Efficiency", "Purity"):
+        assert f">{word}<" in svg
+    assert ">fraction<" not in svg

@@ -30,11 +30,14 @@ def write_responses(folder: str | Path, responses: Mapping[str, Mapping[str, Res
 
 def plot_responses(folder: str | Path, responses: Mapping[str, Mapping[str, Response]], *,
                    levels: Mapping[str, tuple[str, str]] | None = None,
+                   labels: Mapping[str, str] | None = None, corner: str = "",
                    formats: Sequence[str] = ("png",), note: str = "") -> list[Path]:
     """``plots/response_<sample>_<histogram>.<fmt>``: per response matrix the migrations
     P(reconstructed bin | truth bin) in percent (each truth row normalised to the events
     reconstructed in range), with the efficiency and purity per bin below. ``levels``: per
-    sample the names of the two levels (default: truth, reconstructed)."""
+    sample the names of the two levels (default: truth, reconstructed); ``labels``: per
+    sample its label, shown in the corner with ``corner`` (e.g. √s) as in the 2-D plots
+    (default: the sample's name)."""
     import io
 
     import matplotlib
@@ -57,7 +60,7 @@ def plot_responses(folder: str | Path, responses: Mapping[str, Mapping[str, Resp
             with np.errstate(divide="ignore", invalid="ignore"):
                 frac = np.where(rows > 0, 100.0 * m / np.where(rows > 0, rows, 1.0), np.nan)
             fig, (ax, ax2) = plt.subplots(
-                2, 1, figsize=(6.4, 7.6), height_ratios=(3.2, 1.0), sharex=True,
+                2, 1, figsize=(7.2, 7.6), height_ratios=(3.2, 1.0), sharex=True,
                 layout="constrained")
             shown = np.where(frac > 0, frac, np.nan)  # empty cells stay white
             mesh = ax.pcolormesh(edges, edges, np.ma.masked_invalid(shown.T), cmap="Blues",
@@ -75,15 +78,16 @@ def plot_responses(folder: str | Path, responses: Mapping[str, Mapping[str, Resp
             apply_axes_style(ax, ylabel=f"{label}, {reco_name}{unit}")
             cbar = fig.colorbar(mesh, ax=ax, pad=0.01)
             cbar.set_label(f"P({reco_name} bin | {truth_name} bin) [%]")
-            corner_texts(ax, note=note, right=str(sample))
+            label_text = (labels or {}).get(sample) or str(sample)
+            corner_texts(ax, note=note, right=", ".join(x for x in (label_text, corner) if x))
             eff = np.asarray(r.efficiency, dtype=np.float64)
             pur = np.asarray(r.purity, dtype=np.float64)
             # bins without events have no efficiency (purity): left blank, not drawn as 0
-            ax2.stairs(eff, edges, color=PALETTE[0], label="efficiency", linewidth=1.8)
-            ax2.stairs(pur, edges, color=PALETTE[3], label="purity", linewidth=1.8,
+            ax2.stairs(eff, edges, color=PALETTE[0], label="Efficiency", linewidth=1.8)
+            ax2.stairs(pur, edges, color=PALETTE[3], label="Purity", linewidth=1.8,
                        linestyle="--")
             ax2.set_ylim(0.0, 1.15)
-            apply_axes_style(ax2, xlabel=f"{label}, {truth_name}{unit}", ylabel="fraction")
+            apply_axes_style(ax2, xlabel=f"{label}, {truth_name}{unit}", ylabel="Fraction")
             ax2.legend(fontsize=8, loc="lower right", ncol=2, frameon=False)
             stem = Path(folder) / "plots" / f"response_{safe_name(sample)}_{safe_name(hname)}"
             for fmt in formats:

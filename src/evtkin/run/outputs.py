@@ -69,11 +69,16 @@ def write_outputs(plan: Plan, result: RunResult, folder: str | Path, *, workers:
         write_responses(out, found)
         if "plots" in formats:
             from evtkin.output.responses import plot_responses
+            from evtkin.output.style import sqrt_s_text
 
             levels = {name: ("parton level", "particle level")
                       for name, spec in plan.config.samples.items() if spec.format == "hepmc"}
+            labels = {name: s.label or name for name, s in results.samples.items()}
+            plot_rec = results.meta.get("plot") or {}
+            corner = sqrt_s_text(plot_rec.get("sqrt_s_gev") if isinstance(plot_rec, dict)
+                                 else None, None)  # the contents are in pb: no luminosity
             plot_responses(out, {k: v for k, v in found.items() if v}, levels=levels,
-                           formats=plan.config.output.plot_formats,
+                           labels=labels, corner=corner, formats=plan.config.output.plot_formats,
                            note=str(results.meta.get("note", "")))
     if "report" in formats:  # last: it reads the folder back (and embeds the plots written above)
         from evtkin.output.report import write_run_report
