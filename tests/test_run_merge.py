@@ -220,3 +220,36 @@ def test_an_ntuple_run_merges_back_to_itself(tmp_path) -> None:  # type: ignore[
             assert np.array_equal(merged.samples[s].histograms[h].rows, nh.rows)
     prov = json.loads((tmp_path / "merged" / "provenance.json").read_text())
     assert prov["inputs"][0]["format"] == "root"  # the ntuple run information came back
+
+
+def test_the_parts_reader_warnings_are_merged(setup, tmp_path) -> None:  # type: ignore[no-untyped-def]
+    import shutil
+
+    d = setup
+    said = {  # what lenient reading records (one message per file, naming it)
+        "p1": ["a0.lhe: skipped 1 damaged part(s) of the event stream, at line(s) 7; x",
+               "the same message from both parts"],
+        "p2": ["the same message from both parts",
+               "b0.lhe: skipped 2 damaged part(s) of the event stream, at line(s) 9, 20; y"],
+    }
+    for name, messages in said.items():
+        shutil.copytree(d / name, tmp_path / name)
+        path = tmp_path / name / "provenance.json"
+        prov = json.loads(path.read_text(encoding="utf-8"))
+        assert prov["read_warnings"] == []  # the parts read undamaged files
+        prov["read_warnings"] = messages
+        path.write_text(json.dumps(prov), encoding="utf-8")
+    merged = merge_results(tmp_path / "m", [tmp_path / "p1", tmp_path / "p2"])
+    expected = [said["p1"][0], said["p1"][1], said["p2"][1]]  # each once, in folder order
+    assert merged.provenance["read_warnings"] == expected
+    written = json.loads((tmp_path / "m" / "provenance.json").read_text(encoding="utf-8"))
+    assert written["read_warnings"] == expected
+    # which part gave which
+    by_part = {(e["part"]["index"], e["part"]["of"]): e["read_warnings"]
+               for e in written["merged_from"]}
+    assert by_part == {(1, 2): said["p1"], (2, 2): said["p2"]}
+    # a merged folder merged again keeps them, and a folder without any adds none
+    again = merge_results(tmp_path / "m2", [tmp_path / "m"])
+    assert again.provenance["read_warnings"] == expected
+    plain = merge_results(tmp_path / "m3", [d / "p1", d / "p2"])
+    assert plain.provenance["read_warnings"] == []

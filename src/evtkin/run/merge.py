@@ -6,7 +6,7 @@ folder was made by the same config (its sha256), that no input file was read by 
 and that the runs read their files alike (the same ``--max-events``), adds the sums, and
 finalises them exactly as :func:`evtkin.run.pipeline.run` finalises one run: cross sections
 from all files together, normalisation, bands, cutflows. The merged folder's provenance lists
-every input of every folder and the folders merged.
+every input of every folder, the folders merged and all their reader warnings.
 """
 
 from __future__ import annotations
@@ -132,10 +132,14 @@ def merge_results(out: str | os.PathLike[str], folders: Sequence[str | os.PathLi
     warnings = _completeness(cfg, provs, set(seen))
     provenance["merged_from"] = [
         {"folder": str(p), "started_utc": pv.get("started_utc"), "command": pv.get("command"),
-         "part": pv.get("part"), "inputs": len(pv.get("inputs") or [])}
+         "part": pv.get("part"), "inputs": len(pv.get("inputs") or []),
+         "read_warnings": _read_warnings(pv)}
         for p, pv in zip(paths, provs, strict=False)]
     provenance["execution"] = {"kind": "merge", "folders": len(paths)}
     provenance["skipped"] = [s for pv in provs for s in (pv.get("skipped") or [])]
+    # as one run lists them (each names its file); which folder gave which: merged_from
+    provenance["read_warnings"] = list(dict.fromkeys(m for pv in provs
+                                                     for m in _read_warnings(pv)))
     provenance["merge_warnings"] = warnings
     result = RunResult(samples, provenance, None, dict(partial.seconds), partial, plan)
     if write:
@@ -144,6 +148,12 @@ def merge_results(out: str | os.PathLike[str], folders: Sequence[str | os.PathLi
         write_outputs(plan, result, Path(out))
         result.out = Path(out)
     return result
+
+
+def _read_warnings(prov: dict[str, Any]) -> list[str]:
+    """A folder's reader warnings (``read_warnings`` of its provenance; none before they were
+    recorded)."""
+    return [str(m) for m in prov.get("read_warnings") or []]
 
 
 def _completeness(cfg: AnalysisConfig, provs: Sequence[dict[str, Any]],
