@@ -2,10 +2,15 @@
 
 Pipeline (one run of :func:`read_lhe`)::
 
-    reader thread            parse workers (1-2, nogil)      caller's thread
-    read/decompress  ---->   byte scanner -> per-buffer  --> copy into the chunk's
-    reused 4 MB buffers      columns (reused)                preallocated columns,
-    cut after </event>                                       zero-copy awkward layout
+    ~4 MB buffers cut        parse workers (1-2, nogil)      caller's thread
+    after </event>   ---->   byte scanner -> per-buffer  --> copy into the chunk's
+    plain file: mapped views columns (reused)                preallocated columns,
+    compressed: a reader                                     zero-copy awkward layout
+    thread decompresses
+
+A plain file (or a byte range of one) is never read into buffers: each buffer is a view
+of a window of the file mapped into memory (:class:`_MappedReader`), made in the caller's
+thread; a compressed file is decompressed by a reader thread into reused buffers.
 
 The scanner is the compiled kernel of :mod:`evtkin.io.lhe_scan`, or the numpy/Python
 one of :mod:`evtkin.io.lhe_fallback` when numba is unavailable or ``EVTKIN_NO_NUMBA=1``
@@ -25,13 +30,16 @@ thread copies them into one chunk's columns, carved from one block per chunk (wi
 for the particles estimated from the events read so far, grown if needed); the block of a
 chunk the caller has dropped is reused (no fresh pages to fault in). Peak memory is
 therefore about the interpreter + libraries + a few 4 MB buffers + two chunks (the one
-being filled and the one the caller holds), independent of the file size. ``threads=0``
-reads, parses and copies in the caller's thread.
+being filled and the one the caller holds), independent of the file size. The free chunk
+memory and scratch columns of a finished read are kept for the next read in the process
+(:data:`SPARE_BLOCKS`, :data:`SPARE_SCRATCH`). ``threads=0`` reads, parses and copies in
+the caller's thread.
 """
 
 from __future__ import annotations
 
 import mmap
+import os
 import queue
 import re
 import sys
@@ -52,6 +60,7 @@ from evtkin.io.lhe_header import lhe_info, open_lhe, xml_escape
 from evtkin.io.sources import (
     Source,
     compressed_size,
+    detect_compression,
     open_binary,
     reader_options,
     source_name,
@@ -60,6 +69,10 @@ from evtkin.io.sources import (
 __all__ = ["LHEWarning", "read_lhe", "scanner_kind"]
 
 BUFFER_BYTES = 4 << 20  # measured: 4 MB beat 8 MB (faster, ~20 MB less memory) and 2 MB
+MAP_PLAIN = True  # plain files: scan views of the mapped file (False: read into buffers)
+_PRIVATE = (mmap.MAP_PRIVATE | getattr(mmap, "MAP_ANONYMOUS", getattr(mmap, "MAP_ANON", 0))
+            if hasattr(mmap, "MAP_PRIVATE") else None)  # fmt: skip
+_SEQUENTIAL = getattr(mmap, "MADV_SEQUENTIAL", None)
 _CLOSE = b"</event>"
 _GROUP_OPEN = b"<eventgroup"
 _GROUP_CLOSE = b"</eventgroup>"
@@ -377,7 +390,8 @@ class _SlabPool:
     4 kB page on first touch (measured: filling a fresh 150 MB array takes 2-7x as long as
     refilling a touched one), so a slab whose only reference is the pool's own is handed
     out again. Any view of a chunk the caller still holds (an awkward array, a numpy column)
-    keeps its slab referenced, so a slab in use is never overwritten.
+    keeps its slab referenced, so a slab in use is never overwritten. The slabs of a finished
+    read are kept for the next read in the process (:data:`SPARE_BLOCKS`).
     """
 
     def __init__(self, keep: int = 2) -> None:
@@ -385,12 +399,12 @@ class _SlabPool:
         self.slabs: list[np.ndarray] = []
 
     def take(self, nbytes: int) -> np.ndarray:
-        for i in range(len(self.slabs)):
-            # references: the list, and getrefcount's argument
-            if sys.getrefcount(self.slabs[i]) == 2 and self.slabs[i].nbytes >= nbytes:
-                return self.slabs[i]
-        slab = _fresh_block(nbytes)
+        # (indexing, not a loop variable: that would be a third reference to a free slab)
         free = [i for i in range(len(self.slabs)) if sys.getrefcount(self.slabs[i]) == 2]
+        for i in free:
+            if self.slabs[i].nbytes >= nbytes:
+                return self.slabs[i]
+        slab = _take_block(nbytes)
         if free:  # too small: replace it
             self.slabs[free[0]] = slab
         elif len(self.slabs) < self.keep:
@@ -404,8 +418,57 @@ def _fresh_block(nbytes: int) -> np.ndarray:
     Not ``np.empty``: numpy asks the kernel for transparent huge pages on large arrays, and
     filling a fresh chunk then measured slower and far more variable here (0.8-1.0 s instead
     of 0.7-0.8 s for the 316 MB benchmark file on two threads; page compaction on first
-    touch). A map of its own is returned to the system as soon as the chunk is dropped."""
-    return np.frombuffer(mmap.mmap(-1, max(nbytes, 1)), dtype=np.uint8)
+    touch). A map of its own is returned to the system as soon as its last view goes.
+    Private, not shared: first touching a page of shared memory measured slower (HepMC
+    reader, ~1.5x)."""
+    n = max(int(nbytes), 1)
+    mm = mmap.mmap(-1, n) if _PRIVATE is None else mmap.mmap(-1, n, flags=_PRIVATE)
+    return np.frombuffer(mm, dtype=np.uint8)
+
+
+#: free chunk slabs kept from finished reads for the next ones in the process (the run
+#: layer reads unit after unit): their pages are touched already
+SPARE_BLOCKS = 2
+_SPARE: list[np.ndarray] = []
+#: scratch columns kept from finished reads (at most ``SPARE_SCRATCH``)
+SPARE_SCRATCH = 4
+_SPARE_SCRATCH: list[_Scratch] = []
+_SPARE_LOCK = threading.Lock()
+
+
+def _take_block(nbytes: int) -> np.ndarray:
+    """A kept slab of at least ``nbytes`` that no view refers to (the smallest), else a
+    fresh one."""
+    with _SPARE_LOCK:
+        best = -1
+        for i in range(len(_SPARE)):
+            # references: the list and getrefcount's argument (none left from views)
+            size = _SPARE[i].nbytes
+            fits = size >= nbytes and (best < 0 or size < _SPARE[best].nbytes)
+            if fits and sys.getrefcount(_SPARE[i]) == 2:
+                best = i
+        if best >= 0:
+            return _SPARE.pop(best)
+    return _fresh_block(nbytes)
+
+
+def _keep_blocks(slabs: list[np.ndarray], scratches: list[_Scratch]) -> None:
+    """Keep the slabs and scratch columns of a finished read for later reads (slabs are
+    taken only once no view of them is left; the newest are kept)."""
+    with _SPARE_LOCK:
+        _SPARE.extend(slabs)
+        del _SPARE[: max(0, len(_SPARE) - SPARE_BLOCKS)]
+        _SPARE_SCRATCH.extend(scratches)
+        del _SPARE_SCRATCH[: max(0, len(_SPARE_SCRATCH) - SPARE_SCRATCH)]
+
+
+def _spare_scratch(nw: int, ids: tuple[str, ...]) -> _Scratch:
+    """A kept scratch for the weight ids ``ids``, else a new one."""
+    with _SPARE_LOCK:
+        for i in range(len(_SPARE_SCRATCH)):
+            if _SPARE_SCRATCH[i].ids == ids:
+                return _SPARE_SCRATCH.pop(i)
+    return _Scratch(nw, ids)
 
 
 def _carve(
@@ -524,17 +587,17 @@ class _Chunk:
 # ------------------------------------------------------------------ reader thread
 
 
-def _cut(buf: bytearray, fill: int, groups: bool) -> int:
-    """End of the last whole event (group) in ``buf[:fill]``, or -1 if there is none."""
-    e = buf.rfind(_CLOSE, 0, fill)
+def _cut(buf: bytearray | mmap.mmap, fill: int, groups: bool, start: int = 0) -> int:
+    """End of the last whole event (group) in ``buf[start:fill]``, or -1 if there is none."""
+    e = buf.rfind(_CLOSE, start, fill)
     if e < 0:
         return -1
     end = e + len(_CLOSE)
     if groups:
-        go = buf.rfind(_GROUP_OPEN, 0, fill)
-        gc = buf.rfind(_GROUP_CLOSE, 0, fill)
+        go = buf.rfind(_GROUP_OPEN, start, fill)
+        gc = buf.rfind(_GROUP_CLOSE, start, fill)
         if go > gc:  # a group is still open at the end: cut before it
-            end = go if go > 0 else -1
+            end = go if go > start else -1
         elif gc >= 0 and gc + len(_GROUP_CLOSE) > end:
             end = gc + len(_GROUP_CLOSE)
     return end
@@ -655,7 +718,7 @@ class _Reader:
             except queue.Full:
                 continue
 
-    def get(self) -> tuple[int, np.ndarray, bool, bool, bytearray]:
+    def get(self) -> tuple[int, np.ndarray, bool, bool, Any]:
         if self.thread is None:
             return next(self.items)
         item = self.q.get()
@@ -663,7 +726,7 @@ class _Reader:
             raise item
         return item  # type: ignore[no-any-return]
 
-    def recycle(self, buf: bytearray) -> None:
+    def recycle(self, buf: Any) -> None:
         self.free.put(buf)
 
     def close(self) -> None:
@@ -673,6 +736,66 @@ class _Reader:
         else:
             self.items.close()
         self.stream.close()
+
+
+class _MappedReader:
+    """The buffers of a plain file: views of the file mapped into memory, no copy (the
+    same ``get()`` as :class:`_Reader`, in the caller's thread: mapping a window and finding
+    its last ``</event>`` costs microseconds). Each buffer is a map of its own (private,
+    so that its view is writable like a read buffer and the scanner sees one array type),
+    unmapped when its last view goes: the mapped pages of the file counted in the resident
+    memory stay a few buffers' worth. A window without a whole event is mapped again twice
+    as large, as :class:`_Reader` grows its buffer.
+
+    The file must not shrink while it is read: touching mapped pages past a new end kills
+    the process (SIGBUS). A file that grows is read up to its size at the start."""
+
+    damage: str | None = None
+
+    def __init__(self, source: Source, base: int, stop: int | None, groups: bool) -> None:
+        self.fh = open(source, "rb")  # noqa: SIM115 - closed in close()
+        self.groups = groups
+        self.items = self._produce(base, os.fstat(self.fh.fileno()).st_size, stop)
+
+    def _produce(
+        self, pos: int, size: int, stop: int | None
+    ) -> Iterator[tuple[int, np.ndarray, bool, bool, Any]]:
+        fd = self.fh.fileno()
+        advise = getattr(os, "posix_fadvise", None)
+        if advise is not None:
+            advise(fd, pos, 0, os.POSIX_FADV_SEQUENTIAL)
+        want = BUFFER_BYTES
+        while True:
+            end = min(pos + want, size)
+            if end <= pos:
+                yield pos, np.zeros(0, np.uint8), True, True, None
+                return
+            lo = pos - pos % mmap.ALLOCATIONGRANULARITY
+            mm = mmap.mmap(fd, end - lo, access=mmap.ACCESS_COPY, offset=lo)
+            if _SEQUENTIAL is not None:
+                mm.madvise(_SEQUENTIAL)
+            eof = end >= size
+            cut = end - lo if eof else _cut(mm, end - lo, self.groups, pos - lo)
+            if cut < 0:  # no whole event in the window: map a larger one
+                want *= 2
+                continue
+            want = BUFFER_BYTES
+            arr = np.frombuffer(mm, np.uint8, count=cut - (pos - lo), offset=pos - lo)
+            final = eof or (stop is not None and lo + cut >= stop)
+            yield pos, arr, final, eof, None
+            pos = lo + cut
+            if final:
+                return
+
+    def get(self) -> tuple[int, np.ndarray, bool, bool, Any]:
+        return next(self.items)
+
+    def recycle(self, buf: Any) -> None:
+        pass
+
+    def close(self) -> None:
+        self.items.close()  # type: ignore[attr-defined]
+        self.fh.close()
 
 
 class _Done:
@@ -876,7 +999,13 @@ def _iterate(
     if stop is not None and begin >= stop:
         stream.close()
         return
-    reader = _Reader(stream, first, begin, stop, groups, name, nbuf=1, threaded=threads > 0)
+    reader: _Reader | _MappedReader
+    if MAP_PLAIN and detect_compression(source) is None:
+        stream.close()
+        reader = _MappedReader(source, begin, stop, groups)
+    else:
+        reader = _Reader(stream, first, begin, stop, groups, name, nbuf=1,
+                         threaded=threads > 0)  # fmt: skip
     free: list[_Scratch] = []
     slabs = _SlabPool()
 
@@ -887,7 +1016,7 @@ def _iterate(
         return s
 
     def scratch() -> _Scratch:
-        return free.pop() if free else _Scratch(nw, names)
+        return free.pop() if free else _spare_scratch(nw, names)
 
     pool = (ThreadPoolExecutor(max_workers=threads, thread_name_prefix="evtkin-lhe-parse")
             if threads > 0 else None)
@@ -897,7 +1026,7 @@ def _iterate(
             return _Done(work, s, base, arr)
         return pool.submit(work, s, base, arr)
 
-    pending: deque[tuple[tuple[int, np.ndarray, bool, bool, bytearray],
+    pending: deque[tuple[tuple[int, np.ndarray, bool, bool, Any],
                          Future[_Scratch] | _Done]]
     pending = deque()
     chunk: _Chunk | None = None
@@ -1033,6 +1162,7 @@ def _iterate(
             fut.cancel()
         if pool is not None:
             pool.shutdown(wait=True)
+        _keep_blocks(slabs.slabs, free)
 
 
 def _line_at_safe(source: Source, pos: int) -> int:
