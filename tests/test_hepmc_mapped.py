@@ -291,3 +291,20 @@ def test_kept_blocks_are_not_shared_with_forked_processes(tmp_path: Path) -> Non
     assert child.exitcode == 0
     assert len(hepmc._SPARE) == n_kept
     assert all(int(hepmc._SPARE[i][:4096].max()) == 3 for i in range(n_kept))
+
+
+def test_large_chunk_blocks_are_not_kept(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    path, _ = _events_file(tmp_path)
+    monkeypatch.setattr(hepmc, "_SPARE", [])
+    monkeypatch.setattr(hepmc, "SPARE_CHUNK_BYTES", 1)  # every chunk block is "large"
+    for _chunk in evtkin.read_hepmc(path, threads=0, step_size=10):
+        pass
+    del _chunk
+    # only the scratch (its block is the scan's work memory, not a chunk's) is kept
+    assert len(hepmc._SPARE) == 1
+    monkeypatch.setattr(hepmc, "_SPARE", [])
+    monkeypatch.setattr(hepmc, "SPARE_CHUNK_BYTES", 1 << 40)
+    for _chunk in evtkin.read_hepmc(path, threads=0, step_size=10):
+        pass
+    del _chunk
+    assert len(hepmc._SPARE) == 3  # and the two chunk blocks taking turns

@@ -134,6 +134,9 @@ def _anonymous(nbytes: int) -> mmap.mmap:
 #: reads unit after unit): their pages are touched already. A read of a 34 MB byte range
 #: touched ~33 MB of fresh pages (chunks and scratch), ~20% of its CPU time.
 SPARE_BLOCKS = 6
+#: chunk blocks larger than this are not kept (a large ``step_size`` would otherwise leave
+#: their pages resident after the read; scratch blocks are mostly untouched address space)
+SPARE_CHUNK_BYTES = 64 << 20
 _SPARE: list[np.ndarray] = []
 _SPARE_LOCK = threading.Lock()
 
@@ -941,7 +944,8 @@ def _iterate(
             fut.cancel()
         if pool is not None:
             pool.shutdown(wait=True)
-        _keep_blocks([*blocks.blocks, *(x.block for x in free)])
+        kept = [x for x in blocks.blocks if x.nbytes <= SPARE_CHUNK_BYTES]
+        _keep_blocks([*kept, *(x.block for x in free)])
 
 
 def _check_after_end(source: Source, name: str, pos: int, rest: np.ndarray,
