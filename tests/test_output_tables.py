@@ -162,17 +162,17 @@ def test_cutflow_in_expected_events_and_as_markdown_and_latex(tmp_path: Path) ->
     # N = L σ with 1 fb⁻¹ = 1000 pb⁻¹ (common practice); error L √Σw²
     txt = cutflow_text(steps, luminosity_fb=140.0)
     assert "expected events (140 fb⁻¹)" in txt
-    assert "280000" in txt  # 140 × 1000 × 2.0
-    assert f"{140e3 * np.sqrt(0.004):.3g}" in txt  # 8.85e+03
+    assert "280,000" in txt  # 140 × 1000 × 2.0
+    assert "8,850" in txt  # 140 × 1000 × √0.004 = 8854.4, to three digits
     md = cutflow_markdown(steps, 140.0)
     rows = [r for r in md.splitlines() if r.startswith("|")]
     assert len(rows) == 4  # header, alignment, two steps
     assert len({r.count("|") for r in rows}) == 1  # every row has the same number of cells
-    assert "| 112000 |" in md  # 140 × 1000 × 0.8
+    assert "| 112,000 |" in md  # 140 × 1000 × 0.8
     tex = cutflow_latex(steps, 140.0)
     assert r"\begin{tabular}{lrrrrr}" in tex
     assert r"two leptons \& more" in tex  # LaTeX specials escaped
-    assert r"$280000 \pm 8.85\times10^{3}$" in tex
+    assert r"$280{,}000 \pm 8{,}850$" in tex  # {,}: no space after the comma in math
     assert tex.count(r" \\") == 3  # header and two rows
     # without a luminosity: no expected-events column
     assert "expected" not in cutflow_text(steps)
@@ -181,3 +181,58 @@ def test_cutflow_in_expected_events_and_as_markdown_and_latex(tmp_path: Path) ->
         ".csv", ".md", ".tex", ".txt"]
     head = (tmp_path / "cutflow" / "dy.csv").read_text(encoding="utf-8").splitlines()[0]
     assert head.endswith(",expected,expected_err")
+
+
+@pytest.mark.parametrize(("value", "count", "error"), [
+    # rounding to three significant digits by hand (common practice for quoted numbers);
+    # thousands separated by commas, plain decimals, no exponent
+    (0, "0", "0"),
+    (0.0, "0", "0"),
+    (0.0123, "0.0123", "0.0123"),
+    (0.012345, "0.0123", "0.0123"),
+    (1.23456e-5, "0.0000123", "0.0000123"),
+    (9.996, "10.0", "10.0"),  # rounds up into the next decade: still three digits
+    (12.345, "12.3", "12.3"),  # the double nearest 12.345 is below it (IEEE 754)
+    (512.7, "513", "513"),
+    (999.6, "1,000", "1,000"),
+    (8854.4, "8,854", "8,850"),
+    (7.16501e7, "71,650,100", "71,700,000"),  # whole events from 100 up, ≤ 6 digits
+    (71_650_123.4, "71,650,100", "71,700,000"),
+    (123_456.7, "123,457", "123,000"),
+    (-7.16501e7, "-71,650,100", "-71,700,000"),  # negative weights
+    (12_345_678, "12,345,678", "12,300,000"),  # an integer count exactly
+])
+def test_event_counts_print_as_read_out(value: float, count: str, error: str) -> None:
+    from evtkin.output.tables import count_error_text, count_text
+
+    assert count_text(value) == count
+    assert count_error_text(value) == error
+
+
+def test_large_expected_events_in_every_cutflow_table(tmp_path: Path) -> None:
+    from evtkin.output.report import render_run_report
+    from evtkin.output.tables import cutflow_latex, cutflow_markdown
+
+    # σ(tt̄) ≈ 511.8 pb at 140 fb⁻¹: 511.786 × 140 × 1000 = 71,650,040 expected events,
+    # shown to six significant digits as Σw (511.786) is
+    steps = [{"step": "all", "n_raw": 250_000, "sum_w": 511.786, "sum_w2": 1.0475},
+             {"step": "selected", "n_raw": 16, "sum_w": 0.0123, "sum_w2": 1e-5}]
+    tables = {"text": cutflow_text(steps, luminosity_fb=140.0),
+              "markdown": cutflow_markdown(steps, 140.0)}
+    for kind, text in tables.items():
+        assert "71,650,000" in text, kind
+        assert "250,000" in text, kind
+        assert "143,000" in text, kind  # 140e3 × √1.0475 = 143,286.4 to three digits
+        assert "1,722" in text, kind  # 0.0123 × 140e3 = 1722
+        assert "443" in text, kind  # 140e3 × √1e-5 = 442.7
+        assert "e+0" not in text, kind  # no exponent form anywhere
+    tex = cutflow_latex(steps, 140.0)
+    assert r"$71{,}650{,}000 \pm 143{,}000$" in tex
+    r = _results()
+    sample = next(iter(r.samples.values()))
+    sample.cutflow = steps
+    sample.luminosity_fb = 140.0
+    page = render_run_report(r, None)
+    assert "<td>71,650,000</td>" in page
+    assert "<td>143,000</td>" in page
+    assert "e+07" not in page

@@ -25,7 +25,7 @@ import numpy as np
 from evtkin._version import __version__
 from evtkin.files import atomic_write_text
 from evtkin.output.tables import Results as ResultsRecord
-from evtkin.output.tables import _cutflow_table
+from evtkin.output.tables import _cutflow_table, count_text
 
 __all__ = ["render_compare_report", "render_run_report", "write_compare_report", "write_run_report"]
 
@@ -66,6 +66,11 @@ def _num(v: Any, fmt: str = ".4g") -> str:
     except (TypeError, ValueError):
         return _e(v)
     return "nan" if not np.isfinite(f) else format(f, fmt)
+
+
+def _count(v: Any) -> str:
+    """An event count as the cutflow tables print it (:func:`count_text`)."""
+    return "–" if v is None else _e(count_text(v))
 
 
 def _img(png: bytes, alt: str) -> str:
@@ -285,8 +290,8 @@ def render_run_report(
                 _e(name),
                 _e(s.label),
                 sig_txt,
-                _num(n_events),
-                _num(x.get("n_eff")),
+                _count(n_events),
+                _count(x.get("n_eff")),
                 _num(s.luminosity_fb),
                 _num(len(s.histograms)),
                 _num(len(s.variations)),

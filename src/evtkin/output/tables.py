@@ -36,6 +36,8 @@ __all__ = [
     "HistResult",
     "Results",
     "SampleResult",
+    "count_error_text",
+    "count_text",
     "cutflow_latex",
     "cutflow_markdown",
     "cutflow_text",
@@ -218,6 +220,38 @@ def read_hist_csv(path: str | os.PathLike[str]) -> dict[str, np.ndarray]:
     return {name: data[:, i] for i, name in enumerate(header)}
 
 
+def count_error_text(x: float, digits: int = 3) -> str:
+    """An uncertainty of an event count as it is read out in a talk: ``digits`` significant
+    digits in plain decimals, thousands separated by commas (``123,000``, ``3.16``,
+    ``0.0123``; ``0`` is ``0``)."""
+    x = float(x)
+    if not math.isfinite(x):
+        return str(x)
+    if x == 0.0:
+        return "0"
+    places = digits - 1 - math.floor(math.log10(abs(x)))
+    r = round(x, places)  # correctly rounded (Python's round of a float)
+    if r != 0.0:  # 9.996 → 10.0: one place fewer
+        places = digits - 1 - math.floor(math.log10(abs(r)))
+    if places <= 0:
+        return f"{round(r):,}"
+    return f"{r:.{places}f}"
+
+
+def count_text(x: float) -> str:
+    """An (expected) event count as it is read out in a talk: whole events with thousands
+    separated by commas from 100 up, at most six significant digits as Σw has
+    (``4,872``, ``71,650,100``), three significant digits below (``12.3``, ``0.0123``);
+    integers exactly (``1,204``); ``0`` is ``0``."""
+    if isinstance(x, (int, np.integer)) and not isinstance(x, bool):
+        return f"{int(x):,}"
+    text = count_error_text(x)
+    if "." in text or text == "0" or not math.isfinite(x):  # below 100 (or 0, nan, inf)
+        return text
+    whole = math.floor(math.log10(abs(float(x)))) + 1  # digits before the point
+    return count_error_text(x, min(whole, 6))
+
+
 def _cutflow_rows(steps: Sequence[Mapping[str, Any]]) -> list[dict[str, Any]]:
     out = []
     first = prev = None
@@ -248,7 +282,7 @@ def _cutflow_table(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | No
     rows = _cutflow_rows(steps)
     if data:  # counted events: N ± √N, no cross section
         head = ["step", "events", "± √N", "eff. step", "eff. cumul."]
-        return head, [[r["step"], str(r["n_raw"]), f"{math.sqrt(r['sum_w2']):.3g}",
+        return head, [[r["step"], count_text(r["n_raw"]), count_error_text(math.sqrt(r["sum_w2"])),
                        f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"] for r in rows]
     exp = _expected(rows, luminosity_fb)
     head = ["step", "events", "Σw [pb]", "± √Σw² [pb]"]
@@ -257,9 +291,10 @@ def _cutflow_table(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | No
     head += ["eff. step", "eff. cumul."]
     body = []
     for k, r in enumerate(rows):
-        line = [r["step"], str(r["n_raw"]), f"{r['sum_w']:.6g}", f"{math.sqrt(r['sum_w2']):.3g}"]
+        line = [r["step"], count_text(r["n_raw"]), f"{r['sum_w']:.6g}",
+                f"{math.sqrt(r['sum_w2']):.3g}"]
         if exp is not None:
-            line += [f"{exp[k][0]:.6g}", f"{exp[k][1]:.3g}"]
+            line += [count_text(exp[k][0]), count_error_text(exp[k][1])]
         line += [f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"]
         body.append(line)
     return head, body
@@ -314,6 +349,11 @@ def _tex_number(text: str) -> str:
     return text
 
 
+def _tex_count(text: str) -> str:
+    """``71,650,100`` → ``71{,}650{,}100`` (math mode: a comma without the space after it)."""
+    return text.replace(",", "{,}")
+
+
 def cutflow_latex(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | None = None,
                   title: str = "", data: bool = False) -> str:
     """The cutflow as a LaTeX ``tabular`` (values ± errors in math mode), ready to \\input
@@ -322,7 +362,8 @@ def cutflow_latex(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | Non
     if data:
         out = [f"% {_tex(title)}" if title else "% evtkin cutflow", r"\begin{tabular}{lrrr}",
                r"\hline", r"Step & Events & Eff. step & Eff. cumul. \\", r"\hline"]
-        out += [f"{_tex(r['step'])} & ${r['n_raw']} \\pm {math.sqrt(r['sum_w2']):.3g}$ & "
+        out += [f"{_tex(r['step'])} & ${_tex_count(count_text(r['n_raw']))} \\pm "
+                f"{_tex_count(count_error_text(math.sqrt(r['sum_w2'])))}$ & "
                 f"{r['eff_step']:.4f} & {r['eff_cum']:.4f} \\\\" for r in rows]
         out += [r"\hline", r"\end{tabular}"]
         return "\n".join(out) + "\n"
@@ -337,10 +378,10 @@ def cutflow_latex(steps: Sequence[Mapping[str, Any]], luminosity_fb: float | Non
     for k, r in enumerate(rows):
         sw = _tex_number(f"{r['sum_w']:.6g}")
         err = _tex_number(f"{math.sqrt(r['sum_w2']):.3g}")
-        cells = [_tex(r["step"]), str(r["n_raw"]), f"${sw} \\pm {err}$"]
+        cells = [_tex(r["step"]), count_text(r["n_raw"]), f"${sw} \\pm {err}$"]
         if exp is not None:
-            n = _tex_number(f"{exp[k][0]:.6g}")
-            dn = _tex_number(f"{exp[k][1]:.3g}")
+            n = _tex_count(count_text(exp[k][0]))
+            dn = _tex_count(count_error_text(exp[k][1]))
             cells.append(f"${n} \\pm {dn}$")
         cells += [f"{r['eff_step']:.4f}", f"{r['eff_cum']:.4f}"]
         out.append(" & ".join(cells) + r" \\")
