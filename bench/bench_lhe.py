@@ -3,11 +3,13 @@
     python bench/make_big_lhe.py --gzip          # once: /tmp/evtkin_bench.lhe(.gz)
     python bench/bench_lhe.py [--file /tmp/evtkin_bench.lhe] [--repeat 3] [--big]
 
-Prints MB/s (of uncompressed text) and the ratio to a bare ``for line in open(path, "rb")``
-scan measured in the same run: uncompressed with 1 and 2 parse threads, gzip, the raw
-decompression rate, peak RSS of each reading process, warm start-up time (imports +
-cached compile + a tiny file) and the cold compile time (empty numba cache). Each
-measurement runs in a fresh subprocess; the best of ``--repeat`` runs is shown.
+Prints MB/s (of uncompressed text), MB per CPU second of the whole process (all threads;
+the least CPU of the runs: it moves far less with the load of a shared machine than wall
+time) and the ratio to a bare ``for line in open(path, "rb")`` scan measured in the same
+run: uncompressed with 0, 1 and 2 parse threads, gzip, the raw decompression rate, peak
+RSS of each reading process, warm start-up time (imports + cached compile + a tiny file)
+and the cold compile time (empty numba cache). Each measurement runs in a fresh
+subprocess; the best of ``--repeat`` interleaved runs is shown.
 """
 
 from __future__ import annotations
@@ -25,7 +27,7 @@ from _baselines import interleaved as _interleaved
 
 CHILD = CHILD_PRELUDE + r"""
 mode, path, threads = sys.argv[1], sys.argv[2], int(sys.argv[3])
-t0 = time.perf_counter()
+t0, c0 = time.perf_counter(), time.process_time()
 if mode in ("bare", "decompress"):
     n = baseline(mode, path)
 else:
@@ -34,11 +36,11 @@ else:
     # measured on its own below, here we time the reading of the big file
     for _ in evtkin.read_lhe(sys.argv[4]):
         pass
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     n = 0
     for chunk in evtkin.read_lhe(path, threads=threads):
         n += len(chunk)
-report(time.perf_counter() - t0, n)
+report(time.perf_counter() - t0, n, time.process_time() - c0)
 """
 
 STARTUP = r"""
@@ -132,14 +134,15 @@ def main() -> None:
     res = interleaved(cases, args.repeat)
     base = size_mb / res[cases[0][0]]["seconds"]
     print(
-        f"{'what':34s} {'s':>6s} {'MB/s':>6s} {'x bare':>7s} {'peak RSS MB':>12s} "
-        f"{'events':>8s}  all runs (s)"
+        f"{'what':34s} {'s':>6s} {'MB/s':>6s} {'x bare':>7s} {'CPU MB/s':>9s} "
+        f"{'peak RSS MB':>12s} {'events':>8s}  all runs (s)"
     )
     for label, r in res.items():
         mbs = size_mb / r["seconds"]
         runs_s = " ".join(f"{x:.2f}" for x in r["all"])
+        cpu = f"{size_mb / r['cpu_min']:9.0f}" if r["cpu_min"] else f"{'':9s}"
         print(
-            f"{label:34s} {r['seconds']:6.2f} {mbs:6.0f} {mbs / base:7.2f} "
+            f"{label:34s} {r['seconds']:6.2f} {mbs:6.0f} {mbs / base:7.2f} {cpu} "
             f"{r['rss_mb']:12.0f} {r['n']:8d}  {runs_s}"
         )
     print(f"load average after: {os.getloadavg()}")
