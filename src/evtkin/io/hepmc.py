@@ -40,7 +40,6 @@ import os
 import queue
 import sys
 import threading
-import warnings
 from collections import deque
 from collections.abc import Callable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -50,7 +49,7 @@ import awkward as ak
 import numpy as np
 
 from evtkin import events as _events
-from evtkin.errors import HepMCError
+from evtkin.errors import HepMCError, warn_reading
 from evtkin.io import hepmc_scan as c
 from evtkin.io.hepmc_header import (
     FORM_NAMES,
@@ -924,7 +923,7 @@ def _iterate(
                 lo, hi = where[2 * j], where[2 * j + 1] - 1
                 spans.append(f"{lo}-{hi}" if hi > lo else f"{lo}")
             more = ", ..." if n_skipped > len(skipped) else ""
-            warnings.warn(
+            warn_reading(
                 f"{name}: skipped {n_skipped} damaged event(s) (lines {', '.join(spans)}{more}); "
                 f"the first: {skipped[0][2]}; the intact events are delivered",
                 HepMCWarning, stacklevel=2,
@@ -970,4 +969,4 @@ def _check_after_end(source: Source, name: str, pos: int, rest: np.ndarray,
 def _problem(msg: str, strict: bool) -> None:
     if strict:
         raise HepMCError(msg + "; use strict=False to read the complete events")
-    warnings.warn(msg + "; the complete events are delivered", HepMCWarning, stacklevel=4)
+    warn_reading(msg + "; the complete events are delivered", HepMCWarning, stacklevel=4)

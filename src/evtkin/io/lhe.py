@@ -44,7 +44,6 @@ import queue
 import re
 import sys
 import threading
-import warnings
 from collections import deque
 from collections.abc import Callable, Generator, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -54,7 +53,7 @@ import awkward as ak
 import numpy as np
 
 from evtkin import events as _events
-from evtkin.errors import LHEError
+from evtkin.errors import LHEError, warn_reading
 from evtkin.io import lhe_scan as c
 from evtkin.io.lhe_header import lhe_info, open_lhe, xml_escape
 from evtkin.io.sources import (
@@ -1199,7 +1198,7 @@ def _lines_at(source: Source, positions: list[int]) -> list[int]:
 def _warn_skipped(source: Source, name: str, skipped: list[tuple[int, str]]) -> None:
     lines = _lines_at(source, [p for p, _ in skipped])
     shown = ", ".join(str(x) for x in lines[:10]) + (", ..." if len(lines) > 10 else "")
-    warnings.warn(
+    warn_reading(
         f"{name}: skipped {len(skipped)} damaged part(s) of the event stream, at line(s) "
         f"{shown}; the first: line {lines[0]}: {skipped[0][1]}; every intact event is "
         "delivered",
@@ -1211,4 +1210,4 @@ def _warn_skipped(source: Source, name: str, skipped: list[tuple[int, str]]) -> 
 def _problem(msg: str, strict: bool) -> None:
     if strict:
         raise LHEError(msg + "; use strict=False to read the complete events")
-    warnings.warn(msg + "; the complete events are delivered", LHEWarning, stacklevel=4)
+    warn_reading(msg + "; the complete events are delivered", LHEWarning, stacklevel=4)

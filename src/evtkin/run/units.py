@@ -20,14 +20,13 @@ import dataclasses
 import math
 import os
 import time
-import warnings
 from collections.abc import Callable
 from typing import Any
 
 import awkward as ak
 import numpy as np
 
-from evtkin.errors import ConfigError, EvtkinError
+from evtkin.errors import ConfigError, EvtkinError, collect_reading_warnings
 from evtkin.run.checksums import sha256_of
 from evtkin.run.inputs import input_source
 from evtkin.run.inputs.base import InputSource, limit_events
@@ -52,8 +51,9 @@ Progress = Callable[[int], None]
 
 
 def reader_warnings() -> dict[str, type[Warning]]:
-    """The readers' warning classes by name: those a unit keeps with its result
-    (``PartialResult.warnings``) instead of showing them where it runs."""
+    """The readers' warning classes by name: a unit keeps their messages with its result
+    (``PartialResult.warnings``, collected by :func:`~evtkin.errors.warn_reading`) and the
+    caller shows them under their own class."""
     from evtkin.io.hepmc import HepMCWarning
     from evtkin.io.lhe import LHEWarning
 
@@ -134,8 +134,8 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     ``read_threads`` is the number of parse threads of the reader (default: its own).
     With ``truth_files`` the response matrices of the histograms marked ``response = true``
     are filled as well. The readers' warnings (:func:`reader_warnings`) go to
-    ``PartialResult.warnings`` instead of being shown here (Python's warning filters are
-    per process: one unit at a time per process, as every executor here runs them). With
+    ``PartialResult.warnings`` instead of being shown here (collected per thread: units
+    running at the same time in threads of one process each keep their own). With
     ``plan.keep_partial`` (``--skip-bad``) a unit whose reading fails is read again
     leniently where its format can, after the events already analysed, and then raises
     :class:`PartialUnitError` holding every intact event's contribution.
@@ -145,23 +145,15 @@ def process_unit(plan: Plan, unit: WorkUnit, progress: Progress | None = None, *
     responses = response_names(plan, sample) if spec.truth_files else []
     source = input_source(spec.format)
     result = PartialResult()
-    kept = reader_warnings()
-    with warnings.catch_warnings(record=True) as caught:
-        # the readers' warnings are kept with the result: from a worker process they
-        # reach the caller that way (execute() shows them there, once)
-        for category in kept.values():
-            warnings.simplefilter("always", category)
+    with collect_reading_warnings() as caught:
+        # the readers' warnings are kept with the result: from a worker process (or one of
+        # several threads of a worker) they reach the caller that way (execute() shows
+        # them there, once)
         try:
             return _process_unit(plan, unit, source, result, responses, progress,
                                  read_threads)
         finally:
-            for w in caught:
-                name = w.category.__name__
-                if kept.get(name) is w.category:
-                    result.warnings.append((name, str(w.message)))
-                else:  # anything else is shown as it would have been
-                    warnings.warn_explicit(w.message, w.category, w.filename, w.lineno,
-                                           source=w.source)
+            result.warnings.extend(caught)
 
 
 def _process_unit(plan: Plan, unit: WorkUnit, source: InputSource, result: PartialResult,
