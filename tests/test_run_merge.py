@@ -222,7 +222,7 @@ def test_an_ntuple_run_merges_back_to_itself(tmp_path) -> None:  # type: ignore[
     assert prov["inputs"][0]["format"] == "root"  # the ntuple run information came back
 
 
-def test_the_parts_reader_warnings_are_merged(setup, tmp_path) -> None:  # type: ignore[no-untyped-def]
+def test_the_parts_reader_warnings_are_merged(setup, tmp_path, capsys) -> None:  # type: ignore[no-untyped-def]
     import shutil
 
     d = setup
@@ -248,6 +248,13 @@ def test_the_parts_reader_warnings_are_merged(setup, tmp_path) -> None:  # type:
     by_part = {(e["part"]["index"], e["part"]["of"]): e["read_warnings"]
                for e in written["merged_from"]}
     assert by_part == {(1, 2): said["p1"], (2, 2): said["p2"]}
+    # the command says them too, each once
+    capsys.readouterr()
+    assert cli_main(["merge", str(tmp_path / "m1"), str(tmp_path / "p1"),
+                     str(tmp_path / "p2")]) == 0
+    err = capsys.readouterr().err
+    assert [x for x in err.splitlines() if x.startswith("warning: read by a part: ")] == [
+        f"warning: read by a part: {m}" for m in expected]
     # a merged folder merged again keeps them, and a folder without any adds none
     again = merge_results(tmp_path / "m2", [tmp_path / "m"])
     assert again.provenance["read_warnings"] == expected

@@ -33,6 +33,10 @@ def main(args: argparse.Namespace) -> int:
     result = merge_results(args.out, args.folders)
     for w in result.provenance.get("merge_warnings") or []:
         print(f"warning: {w}", file=sys.stderr)
+    # what the jobs' readers tolerated (lenient reading): said again here, since the merged
+    # results hold the events those warnings are about
+    for w in result.provenance.get("read_warnings") or []:
+        print(f"warning: read by a part: {w}", file=sys.stderr)
     for name, s in result.samples.items():
         sigma = f"{s.xsec.sigma_pb:.6g} pb" if s.xsec is not None else "n/a"
         print(f"{name}: {s.n_events} events, σ = {sigma}")
