@@ -60,6 +60,7 @@ from evtkin.io.sources import (
     Source,
     compressed_size,
     detect_compression,
+    map_window,
     open_binary,
     reader_options,
     source_name,
@@ -71,7 +72,6 @@ BUFFER_BYTES = 4 << 20  # measured: 4 MB beat 8 MB (faster, ~20 MB less memory) 
 MAP_PLAIN = True  # plain files: scan views of the mapped file (False: read into buffers)
 _PRIVATE = (mmap.MAP_PRIVATE | getattr(mmap, "MAP_ANONYMOUS", getattr(mmap, "MAP_ANON", 0))
             if hasattr(mmap, "MAP_PRIVATE") else None)  # fmt: skip
-_SEQUENTIAL = getattr(mmap, "MADV_SEQUENTIAL", None)
 _CLOSE = b"</event>"
 _GROUP_OPEN = b"<eventgroup"
 _GROUP_CLOSE = b"</eventgroup>"
@@ -746,13 +746,15 @@ class _MappedReader:
     memory stay a few buffers' worth. A window without a whole event is mapped again twice
     as large, as :class:`_Reader` grows its buffer.
 
-    The file must not shrink while it is read: touching mapped pages past a new end kills
-    the process (SIGBUS). A file that grows is read up to its size at the start."""
+    A file that shrinks while it is read raises :class:`LHEError` (checked before every
+    window, :func:`~evtkin.io.sources.map_window`). A file that grows is read up to its
+    size at the start."""
 
     damage: str | None = None
 
     def __init__(self, source: Source, base: int, stop: int | None, groups: bool) -> None:
         self.fh = open(source, "rb")  # noqa: SIM115 - closed in close()
+        self.name = source_name(source)
         self.groups = groups
         self.items = self._produce(base, os.fstat(self.fh.fileno()).st_size, stop)
 
@@ -770,9 +772,7 @@ class _MappedReader:
                 yield pos, np.zeros(0, np.uint8), True, True, None
                 return
             lo = pos - pos % mmap.ALLOCATIONGRANULARITY
-            mm = mmap.mmap(fd, end - lo, access=mmap.ACCESS_COPY, offset=lo)
-            if _SEQUENTIAL is not None:
-                mm.madvise(_SEQUENTIAL)
+            mm = map_window(fd, lo, end - lo, size, self.name, LHEError)
             eof = end >= size
             cut = end - lo if eof else _cut(mm, end - lo, self.groups, pos - lo)
             if cut < 0:  # no whole event in the window: map a larger one

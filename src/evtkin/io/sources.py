@@ -25,6 +25,7 @@ from __future__ import annotations
 import bz2
 import io
 import lzma
+import mmap
 import os
 import stat
 import zlib
@@ -38,6 +39,7 @@ __all__ = [
     "compressed_size",
     "default_threads",
     "detect_compression",
+    "map_window",
     "open_binary",
     "reader_options",
     "source_name",
@@ -56,6 +58,33 @@ _MAGIC: tuple[tuple[bytes, str], ...] = (
 def source_name(source: Source) -> str:
     """The path as shown in messages."""
     return os.fspath(source) if not isinstance(source, bytes) else source.decode(errors="replace")
+
+
+_SEQUENTIAL = getattr(mmap, "MADV_SEQUENTIAL", None)
+
+
+def map_window(fd: int, lo: int, length: int, size: int, name: str,
+               error: type[EvtkinError]) -> mmap.mmap:
+    """``length`` bytes of the open file ``fd`` from offset ``lo`` mapped into memory
+    (private, so that views are writable; marked sequential, so that the kernel reads
+    ahead), once the file is seen to still hold the ``size`` bytes it had when reading
+    began.
+
+    A file rewritten in place while it is read shrinks under the reader: mapping past its
+    new end fails with a bare ``ValueError`` that names no file, so the size is checked
+    before every window and a shrunk file raises ``error`` naming it and what was read.
+    (Touching the pages of a window mapped before the file was cut inside it kills the
+    process with SIGBUS, which Python cannot catch: ``MAP_PLAIN = False`` in the reader
+    reads into buffers instead, for files that may change while they are read.)"""
+    now = os.fstat(fd).st_size
+    if now < size:
+        raise error(f"{name}: the file shrank from {size:,} to {now:,} bytes while it was "
+                    f"read (rewritten in place?); read up to byte {lo:,}, nothing after; "
+                    "read it again once it is complete")  # fmt: skip
+    mm = mmap.mmap(fd, length, access=mmap.ACCESS_COPY, offset=lo)
+    if _SEQUENTIAL is not None:
+        mm.madvise(_SEQUENTIAL)
+    return mm
 
 
 def check_regular(path: Source) -> None:
