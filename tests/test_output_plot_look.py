@@ -224,3 +224,39 @@ def test_corner_text_sits_above_the_frame_on_the_right() -> None:
         assert abs(box.x1 - frame.x1) < 2  # right-aligned with the frame
     finally:
         plt.close(fig)
+
+
+@pytest.mark.parametrize("label", [
+    "tt̄ (toy)",
+    "tt̄ + jets, toy shower, dressed leptons (5.2 M events)",  # beside the note: too long
+    "tt̄ + jets, toy shower with dressed leptons and B hadrons, 5.2 M events, √s = 13.6 TeV",
+])
+def test_corner_texts_never_touch_and_stay_in_the_figure(label: str) -> None:
+    from evtkin.output.style import corner_texts
+
+    fig, ax = plt.subplots(figsize=(6.4, 5.0), layout="constrained")
+    try:
+        mesh = ax.pcolormesh(np.arange(4.0), np.arange(3.0), np.ones((2, 3)))
+        fig.colorbar(mesh, ax=ax)
+        ax.set_xlabel("x")
+        ax.set_ylabel("y")
+        corner_texts(ax, note=NOTE, right=label)
+        fig.draw_without_rendering()
+        note_t, right_t = ax.texts
+        a, b = note_t.get_window_extent(), right_t.get_window_extent()
+        frame, page = ax.get_window_extent(), fig.bbox
+        overlap_x = min(a.x1, b.x1) - max(a.x0, b.x0)
+        overlap_y = min(a.y1, b.y1) - max(a.y0, b.y0)
+        assert overlap_x <= 0 or overlap_y <= 0  # common practice: texts never overprint
+        for box in (a, b):
+            assert box.y0 >= frame.y1 - 1  # above the frame
+            assert page.x0 <= box.x0
+            assert box.x1 <= page.x1 + 1
+            assert box.y1 <= page.y1 + 1  # inside the page
+        if len(label) < 20:  # room for both: on one line
+            assert abs(a.y0 - b.y0) < 1
+        else:  # the note one line higher, still left-aligned with the frame
+            assert a.y0 >= b.y1 - 1
+            assert abs(a.x0 - frame.x0) < 2
+    finally:
+        plt.close(fig)

@@ -108,13 +108,41 @@ def fold_multiplier(ax: Any, label: str | None = None) -> None:
 
 
 def corner_texts(ax: Any, *, note: str = "", right: str = "", fontsize: float = 9) -> None:
-    """``note`` above the frame on the left (italic), ``right`` above it on the right."""
+    """``note`` above the frame on the left (italic), ``right`` above it on the right. When
+    the two would touch (a long sample label), the note goes one line higher, over the
+    right-hand text; a right-hand text wider than the frame is wrapped at spaces."""
+    left_t = right_t = None
     if note:
-        ax.text(0.0, 1.015, note, transform=ax.transAxes, ha="left", va="bottom",
-                fontsize=fontsize - 1, style="italic", color="0.3")
+        left_t = ax.text(0.0, 1.015, note, transform=ax.transAxes, ha="left", va="bottom",
+                         fontsize=fontsize - 1, style="italic", color="0.3")
     if right:
-        ax.text(1.0, 1.015, right, transform=ax.transAxes, ha="right", va="bottom",
-                fontsize=fontsize)
+        right_t = ax.text(1.0, 1.015, right, transform=ax.transAxes, ha="right",
+                          va="bottom", fontsize=fontsize, multialignment="right")
+    if right_t is None:
+        return
+    fig = ax.figure
+    renderer = fig.canvas.get_renderer()
+    b = right_t.get_window_extent(renderer)
+    a_width = left_t.get_window_extent(renderer).width if left_t is not None else 0.0
+    gap = 0.6 * fontsize * fig.dpi / 72  # pixels
+    if a_width + b.width + gap < 0.8 * ax.get_window_extent(renderer).width:
+        return  # apart whatever the layout makes of the axes' width
+    engine = fig.get_layout_engine()
+    if engine is not None:
+        engine.execute(fig)  # the axes' final width
+    width = ax.get_window_extent(renderer).width
+    if b.width > width:
+        import textwrap
+
+        chars = max(10, int(len(right) * width / b.width * 0.95))
+        right_t.set_text(textwrap.fill(right, chars, break_long_words=False))
+        b = right_t.get_window_extent(renderer)
+    if left_t is None or left_t.get_window_extent(renderer).x1 + gap <= b.x0:
+        return
+    from matplotlib.transforms import offset_copy
+
+    rise = b.height * 72 / fig.dpi + 1  # points
+    left_t.set_transform(offset_copy(ax.transAxes, fig=fig, y=rise, units="points"))
 
 
 # a word with TeX-style sub/superscripts: m_{jj}, p_T^{t,had}, E_T
