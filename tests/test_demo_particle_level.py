@@ -152,3 +152,40 @@ def test_the_run_writes_particle_parton_responses(tmp_path: Path) -> None:
         near = np.abs(idx[:, None] - idx[None, :]) <= 1
         assert matrix[near].sum() > 0.7 * matrix.sum()
         assert (out / "plots" / f"response_ttbar_{name}.png").stat().st_size > 10_000
+
+
+def test_byte_range_units_with_truth_files_give_the_whole_file_responses(tmp_path: Path) -> None:
+    """A plain HepMC file with truth_files is split into byte-range units; each unit joins its
+    events with their LHE partners from its own first event number on, so the histograms and
+    response matrices are those of one whole-file unit (to the summation order)."""
+    import gzip
+
+    from evtkin.run.pipeline import run
+
+    plain = tmp_path / "shower.hepmc"
+    plain.write_bytes(gzip.decompress(SHOWER.read_bytes()))
+    text = CONFIG.read_text(encoding="utf-8")
+    for old, new in (('"../samples/toy_ttbar_shower.hepmc.gz"', json.dumps(str(plain))),
+                     ('"../samples/toy_ttbar.lhe.gz"', json.dumps(str(LHE))),
+                     ('formats = ["root", "json", "csv", "cutflow", "plots"]',
+                      'formats = ["json"]')):
+        assert old in text
+        text = text.replace(old, new)
+    cfg = tmp_path / "split.toml"
+    cfg.write_text(text, encoding="utf-8")
+    whole = run(cfg, out=tmp_path / "whole", step_size=40)
+    split = run(cfg, out=tmp_path / "split", step_size=40,
+                unit_bytes=plain.stat().st_size // 3 + 1)
+    assert whole.provenance["execution"]["units"] == 1
+    assert split.provenance["execution"]["units"] == 3
+    a, b = whole.samples["ttbar"], split.samples["ttbar"]
+    assert [r["n_raw"] for r in a.cutflow] == [r["n_raw"] for r in b.cutflow]
+    np.testing.assert_allclose([r["sum_w"] for r in b.cutflow], [r["sum_w"] for r in a.cutflow],
+                               rtol=1e-12)
+    assert set(a.responses) == set(b.responses) == {"m_tt_coarse", "top_pt_coarse"}
+    for name, ra in a.responses.items():
+        rb = b.responses[name]
+        for field in ("matrix", "truth", "reco", "misses"):
+            np.testing.assert_allclose(getattr(rb, field), getattr(ra, field),
+                                       rtol=1e-12, atol=1e-300, err_msg=f"{name}.{field}")
+        assert np.sum(ra.matrix) > 0

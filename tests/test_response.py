@@ -111,6 +111,35 @@ def test_truth_histogram_equals_the_same_config_on_the_lhe_file(files):
                                gen.samples["gen"].histograms["lep_pt"].rows[0], rtol=1e-12)
 
 
+def test_entry_range_units_join_from_their_own_event_numbers(files, tmp_path):
+    """An ntuple with truth_files split into entry ranges: each unit skips the LHE events
+    before its first event number, and the matrices are those of one whole-file unit."""
+    _, lhe, root, _ = files
+    whole = run(_config(lhe, root))
+    split = run(_config(lhe, root), unit_bytes=root.stat().st_size // 3 + 1, step_size=200)
+    assert split.provenance["execution"]["units"] == 3
+    ra, rb = whole.samples["tt"].responses["lep_pt"], split.samples["tt"].responses["lep_pt"]
+    for field in ("matrix", "truth", "reco", "misses"):
+        np.testing.assert_allclose(getattr(rb, field), getattr(ra, field), rtol=1e-12,
+                                   err_msg=field)
+
+
+def test_truth_join_far_into_the_files_keeps_a_few_chunks(files):
+    from evtkin.run.inputs.ntuple import TruthJoin
+
+    _, lhe, _, (t_pt, *_) = files
+    join = TruthJoin([str(lhe)], 50, "test")
+    held: list[int] = []  # chunks held each time the join reads the next one
+    chunks = join._readers
+    join._readers = (c for c in chunks if not held.append(len(join._buffer)))
+    numbers = np.arange(N - 120, N - 3)
+    got = join.take(numbers)
+    assert len(held) == N // 50  # every chunk read once
+    assert max(held) <= 4  # not the 1380 events before the first one asked for
+    lep = got.particles[:, 8]
+    np.testing.assert_allclose(ak.to_numpy(lep.pt), t_pt[numbers], rtol=1e-12)
+
+
 def test_truth_join_errors(files, tmp_path):
     _, lhe, root, _ = files
     short = tmp_path / "short.lhe"

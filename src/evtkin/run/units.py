@@ -69,8 +69,9 @@ def make_units(plan: Plan, *, workers: int = 1, unit_bytes: int | None = None
                ) -> list[WorkUnit]:
     """Split the inputs of every sample into work units, in config order.
 
-    Plain LHE files larger than the target unit size become byte-range units, ROOT
-    ntuples (without ``truth_files``) entry-range units. The target
+    Plain LHE and HepMC files larger than the target unit size become byte-range units,
+    ROOT ntuples entry-range units (with ``truth_files`` too: a unit's truth join skips the
+    generator-level events before its first event number). The target
     is ``unit_bytes`` if given, else the total input size over ``UNITS_PER_WORKER x
     workers`` (never below :data:`MIN_UNIT_BYTES`); with ``workers=1`` and no
     ``unit_bytes`` every file is one unit. Compressed files, and every file when

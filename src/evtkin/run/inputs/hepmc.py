@@ -16,8 +16,10 @@ Events carry no process id in HepMC: the chunks get ``process_id = 0``.
 
 Truth. ``truth_files = [LHE files]`` gives the generator-level events the file was showered
 from: event number N (counted from 1, as ``evtkin toy shower`` writes them) is the N-th event of
-those files, read in order as one sequence (the join of :mod:`evtkin.run.inputs.ntuple`); a
-sample with truth files is read as one unit per file.
+those files, read in order as one sequence (the join of :mod:`evtkin.run.inputs.ntuple`). A
+byte-range unit in the middle of a file reads the truth files from their start and skips the
+events before its first event number (parton-level events are a few per cent of the size of
+their showered ones, so a file's units cost little more than one).
 """
 
 from __future__ import annotations
@@ -157,7 +159,7 @@ class HepMCSource(InputSource):
         from evtkin.io.hepmc import hepmc_byte_ranges
         from evtkin.io.hepmc_header import compression
 
-        if parts <= 1 or compression(path) is not None or spec.truth_files:
+        if parts <= 1 or compression(path) is not None:
             return super().work_units(spec, file_index, path, size, 1, max_events)
         ranges = hepmc_byte_ranges(path, parts)
         return [WorkUnit(spec.name, file_index, path, byte_range=(a, b), part=k,

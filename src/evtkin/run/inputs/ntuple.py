@@ -208,13 +208,17 @@ class TruthJoin:
             self._buffer.append(chunk)
             self._stop += len(chunk)
             self._joined = None
-        while self._buffer and self._start + len(self._buffer[0]) <= lo:
-            self._start += len(self._buffer.pop(0))
-            self._joined = None
+            self._drop_before(lo)  # a unit far into the file: memory stays a few chunks
+        self._drop_before(lo)
         if self._joined is None:
             self._joined = (self._buffer[0] if len(self._buffer) == 1
                             else ak.concatenate(self._buffer, axis=0))
         return self._joined[numbers - self._start]
+
+    def _drop_before(self, lo: int) -> None:
+        while self._buffer and self._start + len(self._buffer[0]) <= lo:
+            self._start += len(self._buffer.pop(0))
+            self._joined = None
 
 
 # --------------------------------------------------------------------------- the source
@@ -295,7 +299,7 @@ class NtupleSource(InputSource):
 
     def work_units(self, spec: SampleSpec, file_index: int, path: str, size: int, parts: int,
                    max_events: int | None) -> list[WorkUnit]:
-        if parts <= 1 or spec.truth_files:  # the truth join streams the files from the start
+        if parts <= 1:
             return super().work_units(spec, file_index, path, size, 1, max_events)
         from evtkin.io.ntuple import describe_ntuple
 
