@@ -8,6 +8,7 @@ import dataclasses
 import gzip
 import threading
 import warnings
+from collections.abc import Callable
 from pathlib import Path
 
 from evtkin.config import load_config
@@ -18,6 +19,21 @@ from evtkin.run.plan import build_plan
 from evtkin.run.units import make_units, process_unit
 from test_run import dy_config, dy_file, dy_sample  # noqa: F401 - fixtures
 from test_run_output_safety import _damage_events
+
+
+def _run_both(a: Callable[[], None], b: Callable[[], None],
+              after: Callable[[], None] | None = None) -> list[warnings.WarningMessage]:
+    """Run ``a`` and ``b`` in two threads (then ``after``); the warnings shown meanwhile."""
+    threads = [threading.Thread(target=a), threading.Thread(target=b)]
+    with warnings.catch_warnings(record=True) as shown:
+        warnings.simplefilter("always")
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join(60)
+        if after is not None:
+            after()
+    return shown
 
 
 def test_collections_of_two_threads_stay_apart() -> None:
@@ -42,14 +58,8 @@ def test_collections_of_two_threads_stay_apart() -> None:
             warn_reading("from B", LHEWarning)
         got["b"] = list(sink)
 
-    threads = [threading.Thread(target=a), threading.Thread(target=b)]
-    with warnings.catch_warnings(record=True) as shown:
-        warnings.simplefilter("always")
-        for t in threads:
-            t.start()
-        for t in threads:
-            t.join(10)
-        warn_reading("outside", LHEWarning)  # no collection open: a plain warning
+    shown = _run_both(a, b, after=lambda: warn_reading("outside", LHEWarning))
+    # with no collection open, a plain warning
     assert got == {"a": [("LHEWarning", "from A")], "b": [("LHEWarning", "from B")]}
     assert [str(w.message) for w in shown] == ["outside"]
 
@@ -84,13 +94,7 @@ def test_units_in_threads_keep_their_own_reader_warnings(tmp_path: Path,
         a_started.wait(10)
         results["b"] = process_unit(plan, unit_b, progress_b)
 
-    threads = [threading.Thread(target=run_a), threading.Thread(target=run_b)]
-    with warnings.catch_warnings(record=True) as shown:
-        warnings.simplefilter("always")
-        for t in threads:
-            t.start()
-        for t in threads:
-            t.join(60)
+    shown = _run_both(run_a, run_b)
     assert not [w for w in shown if issubclass(w.category, LHEWarning)]  # none escaped
     (wa,) = results["a"].warnings
     (wb,) = results["b"].warnings
