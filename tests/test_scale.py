@@ -181,6 +181,30 @@ def test_serial_processes_and_dask_agree(files, reference):
         assert [i["sha256"] for i in res.provenance["inputs"]] == want
 
 
+def test_a_dask_worker_with_two_threads_keeps_every_units_warnings(files, tmp_path):
+    """Units running at the same time in two threads of one Dask worker: the same results
+    as serial reading, and every damaged part's warning in the provenance, once."""
+    from distributed import LocalCluster
+
+    damaged = [_corrupt_copy(f, tmp_path / f"damaged{i}.lhe", event=40 + 100 * i)
+               for i, f in enumerate(files)]
+    size = damaged[0].stat().st_size
+    with pytest.warns(LHEWarning):
+        serial = run(config(damaged), unit_bytes=size // 4, lenient=True,
+                     executor=SerialExecutor())
+    want = serial.provenance["read_warnings"]
+    assert len(want) == 3  # one damaged part in each file
+    with LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                      dashboard_address=None) as cluster, pytest.warns(LHEWarning) as shown:
+        dask = run(config(damaged), unit_bytes=size // 4, lenient=True,
+                   executor=DaskExecutor(cluster.scheduler_address))
+    assert dask.provenance["execution"]["units"] >= 12
+    assert sorted(dask.provenance["read_warnings"]) == sorted(want)
+    assert sorted({str(w.message) for w in shown if issubclass(w.category, LHEWarning)}) \
+        == sorted(want)
+    assert_same(flat(serial), flat(dask))
+
+
 def test_process_pool_reports_a_failing_unit(files, tmp_path):
     bad = tmp_path / "bad.lhe"
     bad.write_bytes(files[1].read_bytes().replace(b"91.0 0.0078125", b"91.0 0.0O78125", 1))
