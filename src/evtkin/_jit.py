@@ -18,6 +18,9 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import hashlib
+import inspect
+import types as pytypes
 from collections.abc import Callable, Iterator
 from typing import Any, TypeVar, cast
 
@@ -28,6 +31,7 @@ __all__ = [
     "lean_compile",
     "lean_pipeline",
     "plain",
+    "tie_cache_to_callees",
     "wide_vectors",
 ]
 
@@ -140,9 +144,71 @@ def plain(**options: Any) -> Callable[[F], F]:
     from numba import njit
 
     def wrap(fn: F) -> F:
-        return cast(F, njit(nogil=True, cache=True, **options)(fn))
+        dispatcher = njit(nogil=True, cache=True, **options)(fn)
+        tie_cache_to_callees(dispatcher)
+        return cast(F, dispatcher)
 
     return wrap
+
+
+def tie_cache_to_callees(dispatcher: Any) -> None:
+    """Make the on-disk cache of a compiled function go stale when a compiled function it
+    calls, defined in another file, changes.
+
+    numba keys a cached function on the contents of its own source file only, yet compiles
+    the compiled functions it calls into it: after an edit of such a callee in another file
+    (``io/exact_float.py`` for both scanners), the cache would go on serving the old code.
+    The callees are found through the global names the function's code uses (a module's
+    attributes too), then theirs in turn; the sha256 of each of their files is added to the
+    stamp numba compares with the one stored beside the cached code. Call it once the
+    callees are bound (at decoration for module-level imports); without numba's cache (or
+    if numba's internals moved) it does nothing."""
+    try:
+        cache_file = dispatcher._cache._cache_file
+        stamp = cache_file._source_stamp
+        own = inspect.getfile(dispatcher.py_func)
+    except (AttributeError, TypeError):
+        return
+    files = sorted(_callee_files(dispatcher.py_func) - {own})
+    if files:
+        cache_file._source_stamp = (stamp, *(_file_hash(f) for f in files))
+
+
+def _callee_files(fn: Any) -> set[str]:
+    """Source files of the numba dispatchers ``fn`` calls, directly or through them."""
+    from numba.core.dispatcher import Dispatcher
+
+    files: set[str] = set()
+    seen: set[int] = set()
+    todo = [fn]
+    while todo:
+        f = todo.pop()
+        if id(f) in seen:
+            continue
+        seen.add(id(f))
+        names = set(_code_names(f.__code__))
+        scope = getattr(f, "__globals__", {})
+        for name in names:
+            value = scope.get(name)
+            found = ([getattr(value, m, None) for m in names]
+                     if isinstance(value, pytypes.ModuleType) else [value])
+            for callee in found:
+                if isinstance(callee, Dispatcher):
+                    files.add(inspect.getfile(callee.py_func))
+                    todo.append(callee.py_func)
+    return files
+
+
+def _code_names(code: pytypes.CodeType) -> Iterator[str]:
+    yield from code.co_names
+    for const in code.co_consts:
+        if isinstance(const, pytypes.CodeType):
+            yield from _code_names(const)
+
+
+def _file_hash(path: str) -> str:
+    with open(path, "rb") as f:
+        return hashlib.sha256(f.read()).hexdigest()
 
 
 def first_call_deferred(dispatcher: F) -> F:
@@ -171,7 +237,9 @@ def kernel(**options: Any) -> Callable[[F], F]:
     from numba import njit
 
     def wrap(fn: F) -> F:
-        wrapped = first_call_deferred(cast(F, njit(nogil=True, cache=True, **options)(fn)))
+        dispatcher = njit(nogil=True, cache=True, **options)(fn)
+        tie_cache_to_callees(dispatcher)
+        wrapped = first_call_deferred(cast(F, dispatcher))
         wrapped.py_func = fn  # type: ignore[attr-defined]
         return wrapped
 

@@ -1672,7 +1672,7 @@ def compiled_kernel() -> Callable[..., Any] | None:
         if numba_available():
             from numba import njit, types
 
-            from evtkin._jit import deferred_extensions, lean_compile
+            from evtkin._jit import deferred_extensions, lean_compile, tie_cache_to_callees
             from evtkin.io import exact_float
 
             jit = njit(nogil=True, cache=True, error_model="numpy")
@@ -1681,6 +1681,7 @@ def compiled_kernel() -> Callable[..., Any] | None:
             for name in _HELPERS:
                 g[name] = jit(g[name])
             kern = jit(scan_kernel_source)
+            tie_cache_to_callees(kern)  # exact_float.py is compiled into it
 
             def arr(dtype: Any, ndim: int) -> Any:
                 return types.Array(dtype, ndim, "C")

@@ -1112,7 +1112,12 @@ def compiled_kernel() -> Callable[..., Any] | None:
         if numba_available():
             from numba import njit, types
 
-            from evtkin._jit import deferred_extensions, lean_compile, lean_pipeline
+            from evtkin._jit import (
+                deferred_extensions,
+                lean_compile,
+                lean_pipeline,
+                tie_cache_to_callees,
+            )
             from evtkin.io import exact_float
 
             jit = njit(nogil=True, cache=True, error_model="numpy", pipeline_class=lean_pipeline())
@@ -1121,6 +1126,7 @@ def compiled_kernel() -> Callable[..., Any] | None:
             for name in _HELPERS:  # the kernel calls the compiled helpers
                 g[name] = jit(g[name])
             kernel = jit(scan_kernel_source)
+            tie_cache_to_callees(kernel)  # exact_float.py is compiled into it
 
             def c(dtype: Any, ndim: int) -> Any:
                 return types.Array(dtype, ndim, "C")
