@@ -211,7 +211,7 @@ def test_later_reads_reuse_memory_but_never_held_chunks(
     path, _ = _events_file(tmp_path)
     other = tmp_path / "other.hepmc"
     evtkin.write_hepmc(other, random_events(150, seed=99), weight_names=NAMES)
-    monkeypatch.setattr(hepmc, "_SPARE", [])
+    monkeypatch.setattr(hepmc._POOL, "blocks", [])
     monkeypatch.setattr(hepmc, "BUFFER_BYTES", 3000)
     held = list(evtkin.read_hepmc(path, step_size=40, threads=0))
     snapshot = [ak.to_list(c) for c in held]  # (copies, as Python objects)
@@ -234,7 +234,7 @@ def test_later_reads_reuse_memory_but_never_held_chunks(
     take = hepmc._take_block
 
     def spying(nbytes: int, extra: int = 0) -> np.ndarray:
-        kept = {id(b) for b in hepmc._SPARE}
+        kept = {id(b) for b in hepmc._POOL.blocks}
         block = take(nbytes, extra)
         if id(block) not in kept:
             fresh_takes.append(nbytes)
@@ -262,12 +262,12 @@ def test_header_only_and_empty_listing(tmp_path: Path, mapped: bool) -> None:
 
 def _overwrite_kept_blocks(queue: Any) -> None:
     """(In a forked child) take every kept block and write 7s into its first page."""
-    before = len(hepmc._SPARE)
+    before = len(hepmc._POOL.blocks)
     for _ in range(before):
         block = hepmc._take_block(1)
         block[:4096] = 7
         del block
-    queue.put(before - len(hepmc._SPARE))  # (the kept blocks taken, not fresh ones)
+    queue.put(before - len(hepmc._POOL.blocks))  # (the kept blocks taken, not fresh ones)
 
 
 def test_kept_blocks_are_not_shared_with_forked_processes(tmp_path: Path) -> None:
@@ -277,10 +277,10 @@ def test_kept_blocks_are_not_shared_with_forked_processes(tmp_path: Path) -> Non
     for _chunk in evtkin.read_hepmc(path, threads=0):
         pass
     del _chunk
-    n_kept = len(hepmc._SPARE)
+    n_kept = len(hepmc._POOL.blocks)
     assert n_kept >= 1
     for i in range(n_kept):  # (by index: a reference held here would keep them from reuse)
-        hepmc._SPARE[i][:4096] = 3
+        hepmc._POOL.blocks[i][:4096] = 3
     # POSIX fork: private pages are copied on write (MAP_PRIVATE), shared ones are not
     ctx = multiprocessing.get_context("fork")
     queue = ctx.Queue()
@@ -289,22 +289,22 @@ def test_kept_blocks_are_not_shared_with_forked_processes(tmp_path: Path) -> Non
     assert queue.get(timeout=60) == n_kept  # the child did take and overwrite them all
     child.join(timeout=60)
     assert child.exitcode == 0
-    assert len(hepmc._SPARE) == n_kept
-    assert all(int(hepmc._SPARE[i][:4096].max()) == 3 for i in range(n_kept))
+    assert len(hepmc._POOL.blocks) == n_kept
+    assert all(int(hepmc._POOL.blocks[i][:4096].max()) == 3 for i in range(n_kept))
 
 
 def test_large_chunk_blocks_are_not_kept(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     path, _ = _events_file(tmp_path)
-    monkeypatch.setattr(hepmc, "_SPARE", [])
+    monkeypatch.setattr(hepmc._POOL, "blocks", [])
     monkeypatch.setattr(hepmc, "SPARE_CHUNK_BYTES", 1)  # every chunk block is "large"
     for _chunk in evtkin.read_hepmc(path, threads=0, step_size=10):
         pass
     del _chunk
     # only the scratch (its block is the scan's work memory, not a chunk's) is kept
-    assert len(hepmc._SPARE) == 1
-    monkeypatch.setattr(hepmc, "_SPARE", [])
+    assert len(hepmc._POOL.blocks) == 1
+    monkeypatch.setattr(hepmc._POOL, "blocks", [])
     monkeypatch.setattr(hepmc, "SPARE_CHUNK_BYTES", 1 << 40)
     for _chunk in evtkin.read_hepmc(path, threads=0, step_size=10):
         pass
     del _chunk
-    assert len(hepmc._SPARE) == 3  # and the two chunk blocks taking turns
+    assert len(hepmc._POOL.blocks) == 3  # and the two chunk blocks taking turns

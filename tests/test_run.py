@@ -289,7 +289,7 @@ def test_a_unit_reuses_the_memory_of_its_previous_chunk(dy_file, monkeypatch):
         return real(nbytes)
 
     monkeypatch.setattr(lhe, "_fresh_block", counting)
-    monkeypatch.setattr(lhe, "_SPARE", [])  # no slab kept from an earlier read
+    monkeypatch.setattr(lhe._POOL, "blocks", [])  # no slab kept from an earlier read
     plan = build_plan(load_config(dy_config([dy_file])), step_size=200)
     (unit,) = make_units(plan, workers=1)
     res = process_unit(plan, unit, read_threads=0)

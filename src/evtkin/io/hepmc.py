@@ -36,7 +36,6 @@ and two chunks: flat in the file size.
 from __future__ import annotations
 
 import mmap
-import os
 import queue
 import sys
 import threading
@@ -51,6 +50,7 @@ import numpy as np
 from evtkin import events as _events
 from evtkin.errors import HepMCError, warn_reading
 from evtkin.io import hepmc_scan as c
+from evtkin.io.blocks import SparePool, anonymous_map, fresh_block
 from evtkin.io.hepmc_header import (
     FORM_NAMES,
     TolerantStream,
@@ -61,15 +61,13 @@ from evtkin.io.hepmc_header import (
     open_stream,
     read_block,
 )
-from evtkin.io.sources import Source, map_window, reader_options, source_name
+from evtkin.io.sources import Source, mapped_windows, reader_options, source_name
 
 __all__ = ["HepMCWarning", "hepmc_byte_ranges", "read_hepmc", "scanner_kind"]
 
 BUFFER_BYTES = 4 << 20
 CHUNK_TEXT_BYTES = 16 << 20
 MAX_AUTO_STEP = 100_000
-_PRIVATE = (mmap.MAP_PRIVATE | getattr(mmap, "MAP_ANONYMOUS", getattr(mmap, "MAP_ANON", 0))
-            if hasattr(mmap, "MAP_PRIVATE") else None)  # fmt: skip
 MAP_PLAIN = True  # plain files: scan views of the mapped file (False: read into buffers)
 PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
                    "px", "py", "pz", "energy", "mass")  # fmt: skip
@@ -113,55 +111,29 @@ def scanner_kind() -> str:
 # ------------------------------------------------------------------ one buffer
 
 
-def _block(nbytes: int) -> np.ndarray:
-    """``nbytes`` of fresh memory as a ``uint8`` array: an anonymous memory map of its own,
-    returned to the system when the last view of it goes. Not ``np.empty``: freed large
-    arrays raise the C allocator's mapping threshold, and the next ones then come from
-    (per-thread) heaps that keep their pages: peak RSS grew by ~200 MB with two threads.
-    Private, not shared: first touching a page of shared memory measured ~1.5x slower."""
-    return np.frombuffer(_anonymous(max(int(nbytes), 1)), dtype=np.uint8)
+#: ``nbytes`` of fresh memory (:func:`evtkin.io.blocks.fresh_block`; a name of this module so
+#: that tests can count the fresh blocks)
+_block = fresh_block
 
-
-def _anonymous(nbytes: int) -> mmap.mmap:
-    if _PRIVATE is None:  # (no MAP_PRIVATE: not a POSIX system)
-        return mmap.mmap(-1, nbytes)
-    return mmap.mmap(-1, nbytes, flags=_PRIVATE)
-
-
-#: free blocks kept from finished reads for the next ones in the process (the run layer
-#: reads unit after unit): their pages are touched already. A read of a 34 MB byte range
-#: touched ~33 MB of fresh pages (chunks and scratch), ~20% of its CPU time.
+#: free blocks kept from finished reads for the next ones in the process (their pages are
+#: touched already; see :mod:`evtkin.io.blocks`)
 SPARE_BLOCKS = 6
 #: chunk blocks larger than this are not kept (a large ``step_size`` would otherwise leave
 #: their pages resident after the read; scratch blocks are mostly untouched address space)
 SPARE_CHUNK_BYTES = 64 << 20
-_SPARE: list[np.ndarray] = []
-_SPARE_LOCK = threading.Lock()
+_POOL = SparePool()
 
 
 def _take_block(nbytes: int, extra: int = 0) -> np.ndarray:
     """A kept block of at least ``nbytes`` that no view refers to (the smallest), else a
     fresh one of ``nbytes + extra``."""
-    with _SPARE_LOCK:
-        best = -1
-        for i in range(len(_SPARE)):
-            # references: the list and getrefcount's argument (none left from views)
-            size = _SPARE[i].nbytes
-            fits = size >= nbytes and (best < 0 or size < _SPARE[best].nbytes)
-            if fits and sys.getrefcount(_SPARE[i]) == 2:
-                best = i
-        if best >= 0:
-            return _SPARE.pop(best)
-    return _block(nbytes + extra)
+    block = _POOL.take(nbytes)
+    return block if block is not None else _block(nbytes + extra)
 
 
 def _keep_blocks(blocks: list[np.ndarray]) -> None:
-    """Keep ``blocks`` for later reads (taken only once no view of them is left). They are
-    private maps: a process forked later (the run layer's workers) writes into copies of
-    their pages, never into its parent's or a sibling's."""
-    with _SPARE_LOCK:
-        _SPARE.extend(blocks)
-        del _SPARE[: max(0, len(_SPARE) - SPARE_BLOCKS)]
+    """Keep ``blocks`` for later reads (taken only once no view of them is left)."""
+    _POOL.keep(blocks, SPARE_BLOCKS)
 
 
 Layout = list[tuple[tuple[int, ...], Any]]
@@ -469,7 +441,7 @@ class _Buffers:
             try:
                 buf = self.free.get_nowait()
             except queue.Empty:
-                return _anonymous(size)  # (see _block)
+                return anonymous_map(size)  # (see evtkin.io.blocks)
             if len(buf) >= size:
                 return buf
 
@@ -514,6 +486,12 @@ class _Buffers:
         self.stream.close()
 
 
+def _cut_before_event(mm: mmap.mmap, start: int, stop: int) -> int:
+    """Just after the newline before the last ``E`` line in ``mm[start + 1 : stop]``, or -1."""
+    k = mm.rfind(_CUT, start + 1, stop)
+    return k + 1 if k >= 0 else -1
+
+
 class _MappedBuffers:
     """The buffers of a plain file: views of the file mapped into memory, no copy (same
     ``get()`` as :class:`_Buffers`, in the caller's thread: mapping a window and finding
@@ -534,33 +512,10 @@ class _MappedBuffers:
         self.items = self._produce(start, stop)
 
     def _produce(self, pos: int, size: int) -> Iterator[tuple[int, np.ndarray, bool, Any]]:
-        fd = self.fh.fileno()
-        advise = getattr(os, "posix_fadvise", None)
-        if advise is not None:
-            advise(fd, pos, 0, os.POSIX_FADV_SEQUENTIAL)
-        want = BUFFER_BYTES
-        while True:
-            end = min(pos + want, size)
-            if end <= pos:
-                yield pos, np.zeros(0, np.uint8), True, None
-                return
-            lo = pos - pos % mmap.ALLOCATIONGRANULARITY
-            mm = map_window(fd, lo, end - lo, size, self.name, HepMCError)
-            if end >= size:
-                yield pos, np.frombuffer(mm, np.uint8, count=end - pos, offset=pos - lo), True, None
-                return
-            cut = mm.rfind(_CUT, pos - lo + 1, end - lo) + 1
-            if cut <= 0:  # one event larger than the window: map a larger one
-                want *= 2
-                continue
-            want = BUFFER_BYTES
-            yield (
-                pos,
-                np.frombuffer(mm, np.uint8, count=cut - (pos - lo), offset=pos - lo),
-                False,
-                None,
-            )
-            pos = lo + cut
+        windows = mapped_windows(self.fh.fileno(), pos, size, BUFFER_BYTES, self.name,
+                                 HepMCError, _cut_before_event)  # fmt: skip
+        for at, view, final in windows:
+            yield at, view, final, None
 
     def get(self) -> tuple[int, np.ndarray, bool, Any]:
         return next(self.items)

@@ -55,12 +55,13 @@ import numpy as np
 from evtkin import events as _events
 from evtkin.errors import LHEError, warn_reading
 from evtkin.io import lhe_scan as c
+from evtkin.io.blocks import SparePool, fresh_block
 from evtkin.io.lhe_header import lhe_info, open_lhe, xml_escape
 from evtkin.io.sources import (
     Source,
     compressed_size,
     detect_compression,
-    map_window,
+    mapped_windows,
     open_binary,
     reader_options,
     source_name,
@@ -70,8 +71,6 @@ __all__ = ["LHEWarning", "read_lhe", "scanner_kind"]
 
 BUFFER_BYTES = 4 << 20  # measured: 4 MB beat 8 MB (faster, ~20 MB less memory) and 2 MB
 MAP_PLAIN = True  # plain files: scan views of the mapped file (False: read into buffers)
-_PRIVATE = (mmap.MAP_PRIVATE | getattr(mmap, "MAP_ANONYMOUS", getattr(mmap, "MAP_ANON", 0))
-            if hasattr(mmap, "MAP_PRIVATE") else None)  # fmt: skip
 _CLOSE = b"</event>"
 _GROUP_OPEN = b"<eventgroup"
 _GROUP_CLOSE = b"</eventgroup>"
@@ -411,59 +410,38 @@ class _SlabPool:
         return slab
 
 
-def _fresh_block(nbytes: int) -> np.ndarray:
-    """``nbytes`` of new memory as a ``uint8`` array: an anonymous memory map of its own.
+#: ``nbytes`` of fresh memory (:func:`evtkin.io.blocks.fresh_block`; a name of this module so
+#: that tests can count the fresh blocks)
+_fresh_block = fresh_block
 
-    Not ``np.empty``: numpy asks the kernel for transparent huge pages on large arrays, and
-    filling a fresh chunk then measured slower and far more variable here (0.8-1.0 s instead
-    of 0.7-0.8 s for the 316 MB benchmark file on two threads; page compaction on first
-    touch). A map of its own is returned to the system as soon as its last view goes.
-    Private, not shared: first touching a page of shared memory measured slower (HepMC
-    reader, ~1.5x)."""
-    n = max(int(nbytes), 1)
-    mm = mmap.mmap(-1, n) if _PRIVATE is None else mmap.mmap(-1, n, flags=_PRIVATE)
-    return np.frombuffer(mm, dtype=np.uint8)
-
-
-#: free chunk slabs kept from finished reads for the next ones in the process (the run
-#: layer reads unit after unit): their pages are touched already
+#: free chunk slabs kept from finished reads for the next ones in the process (their pages
+#: are touched already; see :mod:`evtkin.io.blocks`)
 SPARE_BLOCKS = 2
-_SPARE: list[np.ndarray] = []
-#: scratch columns kept from finished reads (at most ``SPARE_SCRATCH``)
+_POOL = SparePool()
+#: scratch columns kept from finished reads (at most ``SPARE_SCRATCH``; under the pool's lock)
 SPARE_SCRATCH = 4
 _SPARE_SCRATCH: list[_Scratch] = []
-_SPARE_LOCK = threading.Lock()
 
 
 def _take_block(nbytes: int) -> np.ndarray:
     """A kept slab of at least ``nbytes`` that no view refers to (the smallest), else a
     fresh one."""
-    with _SPARE_LOCK:
-        best = -1
-        for i in range(len(_SPARE)):
-            # references: the list and getrefcount's argument (none left from views)
-            size = _SPARE[i].nbytes
-            fits = size >= nbytes and (best < 0 or size < _SPARE[best].nbytes)
-            if fits and sys.getrefcount(_SPARE[i]) == 2:
-                best = i
-        if best >= 0:
-            return _SPARE.pop(best)
-    return _fresh_block(nbytes)
+    slab = _POOL.take(nbytes)
+    return slab if slab is not None else _fresh_block(nbytes)
 
 
 def _keep_blocks(slabs: list[np.ndarray], scratches: list[_Scratch]) -> None:
     """Keep the slabs and scratch columns of a finished read for later reads (slabs are
     taken only once no view of them is left; the newest are kept)."""
-    with _SPARE_LOCK:
-        _SPARE.extend(slabs)
-        del _SPARE[: max(0, len(_SPARE) - SPARE_BLOCKS)]
+    _POOL.keep(slabs, SPARE_BLOCKS)
+    with _POOL.lock:
         _SPARE_SCRATCH.extend(scratches)
         del _SPARE_SCRATCH[: max(0, len(_SPARE_SCRATCH) - SPARE_SCRATCH)]
 
 
 def _spare_scratch(nw: int, ids: tuple[str, ...]) -> _Scratch:
     """A kept scratch for the weight ids ``ids``, else a new one."""
-    with _SPARE_LOCK:
+    with _POOL.lock:
         for i in range(len(_SPARE_SCRATCH)):
             if _SPARE_SCRATCH[i].ids == ids:
                 return _SPARE_SCRATCH.pop(i)
@@ -761,28 +739,12 @@ class _MappedReader:
     def _produce(
         self, pos: int, size: int, stop: int | None
     ) -> Iterator[tuple[int, np.ndarray, bool, bool, Any]]:
-        fd = self.fh.fileno()
-        advise = getattr(os, "posix_fadvise", None)
-        if advise is not None:
-            advise(fd, pos, 0, os.POSIX_FADV_SEQUENTIAL)
-        want = BUFFER_BYTES
-        while True:
-            end = min(pos + want, size)
-            if end <= pos:
-                yield pos, np.zeros(0, np.uint8), True, True, None
-                return
-            lo = pos - pos % mmap.ALLOCATIONGRANULARITY
-            mm = map_window(fd, lo, end - lo, size, self.name, LHEError)
-            eof = end >= size
-            cut = end - lo if eof else _cut(mm, end - lo, self.groups, pos - lo)
-            if cut < 0:  # no whole event in the window: map a larger one
-                want *= 2
-                continue
-            want = BUFFER_BYTES
-            arr = np.frombuffer(mm, np.uint8, count=cut - (pos - lo), offset=pos - lo)
-            final = eof or (stop is not None and lo + cut >= stop)
-            yield pos, arr, final, eof, None
-            pos = lo + cut
+        groups = self.groups
+        windows = mapped_windows(self.fh.fileno(), pos, size, BUFFER_BYTES, self.name,
+                                 LHEError, lambda mm, a, b: _cut(mm, b, groups, a))
+        for at, view, eof in windows:
+            final = eof or (stop is not None and at + len(view) >= stop)
+            yield at, view, final, eof, None
             if final:
                 return
 

@@ -29,8 +29,11 @@ import mmap
 import os
 import stat
 import zlib
+from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any, BinaryIO, cast
+
+import numpy as np
 
 from evtkin.errors import EvtkinError, LHEError
 
@@ -40,6 +43,7 @@ __all__ = [
     "default_threads",
     "detect_compression",
     "map_window",
+    "mapped_windows",
     "open_binary",
     "reader_options",
     "source_name",
@@ -85,6 +89,39 @@ def map_window(fd: int, lo: int, length: int, size: int, name: str,
     if _SEQUENTIAL is not None:
         mm.madvise(_SEQUENTIAL)
     return mm
+
+
+def mapped_windows(fd: int, pos: int, size: int, window: int, name: str,
+                   error: type[EvtkinError], cut: Callable[[mmap.mmap, int, int], int],
+                   ) -> Iterator[tuple[int, np.ndarray, bool]]:  # fmt: skip
+    """The bytes ``[pos, size)`` of the open file ``fd`` as views of maps of the file,
+    ``(offset, view, at_end)`` in order, each about ``window`` bytes and ending where
+    ``cut(map, start, stop)`` says: the offset in the map just after the last whole record
+    that starts at or after ``start`` and ends before ``stop``, or -1 if none does (the
+    window is then mapped again twice as large). The last view ends at ``size`` (one empty
+    view if there is nothing to read). The kernel is told that the file is read
+    sequentially (read-ahead); each map is checked by :func:`map_window`."""
+    advise = getattr(os, "posix_fadvise", None)
+    if advise is not None:
+        advise(fd, pos, 0, os.POSIX_FADV_SEQUENTIAL)
+    want = window
+    while True:
+        end = min(pos + want, size)
+        if end <= pos:
+            yield pos, np.zeros(0, np.uint8), True
+            return
+        lo = pos - pos % mmap.ALLOCATIONGRANULARITY
+        mm = map_window(fd, lo, end - lo, size, name, error)
+        at_end = end >= size
+        stop = end - lo if at_end else cut(mm, pos - lo, end - lo)
+        if stop < 0:
+            want *= 2
+            continue
+        want = window
+        yield pos, np.frombuffer(mm, np.uint8, count=stop - (pos - lo), offset=pos - lo), at_end
+        if at_end:
+            return
+        pos = lo + stop
 
 
 def check_regular(path: Source) -> None:
