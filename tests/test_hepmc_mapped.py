@@ -179,11 +179,8 @@ def test_damaged_event_in_a_later_buffer(tmp_path: Path, monkeypatch: pytest.Mon
     assert "skipped 1 damaged event(s) (lines" in caught[0]
 
 
-def test_chunks_dropped_while_streaming_reuse_their_memory(
-    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
-) -> None:
-    path, _ = _events_file(tmp_path)
-    ref = _outcome(path)[1]
+def _count_fresh_blocks(monkeypatch: pytest.MonkeyPatch) -> list[int]:
+    """From now on, the sizes of the fresh blocks the reader makes."""
     made: list[int] = []
     fresh = hepmc._block
 
@@ -192,6 +189,15 @@ def test_chunks_dropped_while_streaming_reuse_their_memory(
         return fresh(nbytes)
 
     monkeypatch.setattr(hepmc, "_block", counting)
+    return made
+
+
+def test_chunks_dropped_while_streaming_reuse_their_memory(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    path, _ = _events_file(tmp_path)
+    ref = _outcome(path)[1]
+    made = _count_fresh_blocks(monkeypatch)
     px_sums = []
     n_chunks = 0
     for chunk in evtkin.read_hepmc(path, step_size=5, threads=0):
@@ -215,14 +221,7 @@ def test_later_reads_reuse_memory_but_never_held_chunks(
     monkeypatch.setattr(hepmc, "BUFFER_BYTES", 3000)
     held = list(evtkin.read_hepmc(path, step_size=40, threads=0))
     snapshot = [ak.to_list(c) for c in held]  # (copies, as Python objects)
-    made: list[int] = []
-    fresh = hepmc._block
-
-    def counting(nbytes: int) -> np.ndarray:
-        made.append(nbytes)
-        return fresh(nbytes)
-
-    monkeypatch.setattr(hepmc, "_block", counting)
+    made = _count_fresh_blocks(monkeypatch)
     # the chunks of the first read are held: the second read cannot have their blocks
     for chunk in evtkin.read_hepmc(other, step_size=40, threads=0):
         del chunk
