@@ -31,11 +31,12 @@ import stat
 import zlib
 from collections.abc import Callable, Iterator
 from pathlib import Path
-from typing import Any, BinaryIO, cast
-
-import numpy as np
+from typing import TYPE_CHECKING, Any, BinaryIO, cast
 
 from evtkin.errors import EvtkinError, LHEError
+
+if TYPE_CHECKING:
+    import numpy as np
 
 __all__ = [
     "Source",
@@ -101,6 +102,10 @@ def mapped_windows(fd: int, pos: int, size: int, window: int, name: str,
     window is then mapped again twice as large). The last view ends at ``size`` (one empty
     view if there is nothing to read). The kernel is told that the file is read
     sequentially (read-ahead); each map is checked by :func:`map_window`."""
+    # numpy only here: `evtkin run --jobs` imports this module (through the CLI) before it
+    # starts the workers' forkserver, which must come before numpy's import
+    import numpy as np
+
     advise = getattr(os, "posix_fadvise", None)
     if advise is not None:
         advise(fd, pos, 0, os.POSIX_FADV_SEQUENTIAL)
