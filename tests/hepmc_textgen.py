@@ -61,7 +61,23 @@ def random_events(n: int, seed: int = 1, k: int = 2, *, grouped: bool = False) -
             "alpha_qed": 1 / 128.0,
             "xsec_pb": 12.5,
             "xsec_err_pb": 0.25,
+            # about half the events carry no process id and no PDF info (-1, NaN and 0s)
+            **_process_and_pdf(rng, rng.random() < 0.5),
             "particles": parts,
             "vertices": verts,
         })  # fmt: skip
     return ak.Array(out)
+
+
+def _process_and_pdf(rng: np.random.Generator, have: bool) -> dict:
+    if not have:
+        return {"signal_process_id": -1, "pdf_parton1": 0, "pdf_parton2": 0,
+                "pdf_x1": np.nan, "pdf_x2": np.nan, "pdf_scale": np.nan, "pdf_xf1": np.nan,
+                "pdf_xf2": np.nan, "pdf_set1": 0, "pdf_set2": 0}  # fmt: skip
+    x1, x2 = rng.uniform(1e-4, 0.9, 2)
+    return {"signal_process_id": int(rng.integers(0, 600)),
+            "pdf_parton1": int(rng.choice([21, 1, -2, 3])),
+            "pdf_parton2": int(rng.choice([21, -1, 2, -3])),
+            "pdf_x1": float(x1), "pdf_x2": float(x2), "pdf_scale": float(rng.uniform(5, 500)),
+            "pdf_xf1": float(rng.uniform(0, 3)), "pdf_xf2": float(rng.uniform(0, 3)),
+            "pdf_set1": int(rng.choice([0, 303400])), "pdf_set2": int(rng.choice([0, 303400]))}

@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 
 import evtkin
-from evtkin.io.hepmc import hepmc_byte_ranges
+from evtkin.io.hepmc import PDF_FIELDS, hepmc_byte_ranges
 from hepmc_textgen import random_events
 
 NAMES = ("nominal", "muR2")
@@ -61,8 +61,12 @@ def test_round_trip_exact(tmp_path: Path, form: str) -> None:
     assert tuple(ak.fields(got.named_weights)) == NAMES
     np.testing.assert_array_equal(ak.to_numpy(got.named_weights[NAMES[1]]),
                                   ak.to_numpy(ev.weights)[:, 1])
-    for f in ("scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb"):
-        np.testing.assert_array_equal(got[f], ev[f])
+    for f in ("scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb", "signal_process_id",
+              *PDF_FIELDS):  # (NaN where absent: equal NaNs compare equal here)
+        np.testing.assert_array_equal(got[f], ev[f], err_msg=f)
+    have = ~np.isnan(ak.to_numpy(ev.pdf_x1))
+    assert 0 < have.sum() < len(ev)  # events with and without PDF info and process id
+    assert np.all((ak.to_numpy(got.signal_process_id) >= 0) == have)
     for f in ("pdgid", "status", "prod_vertex", "end_vertex", "px", "py", "pz", "energy", "mass"):
         assert ak.to_list(got.particles[f]) == ak.to_list(ev.particles[f]), f
     for f in ("x", "y", "z", "t", "status"):
@@ -144,10 +148,66 @@ def test_io_genevent_form(tmp_path: Path) -> None:
     assert p.prod_vertex.tolist() == [-1, -1, 0, 1, 1]
     assert p.end_vertex.tolist() == [0, 0, 1, -1, -1]
     assert ev.vertices[0].z.tolist() == [0.0, 1.0]
+    # E line field 6 is the signal process id; F id1 id2 x1 x2 scalePDF xf1 xf2 id_pdf1
+    # id_pdf2 (HepMC2 IO_GenEvent layout, # from memory)
+    assert ev.signal_process_id.tolist() == [0]
+    assert [ev[f][0] for f in PDF_FIELDS] == [21, 21, 0.1, 0.2, 91.0, 1.0, 1.0, 0, 0]
     info = evtkin.hepmc_info(path)
     assert info.form == "IO_GenEvent"
     assert info.weight_names == ("0",)
     assert ak.fields(ev.named_weights) == ["0"]
+
+
+V3_PDF_TEXT = b"""HepMC::Version 3.02.00
+HepMC::Asciiv3-START_EVENT_LISTING
+E 1 1 3
+U GEV MM
+A 0 signal_process_id 81
+A 0 GenPdfInfo 21 -2 0.0125 0.25 172.5 1.75 0.0625 303400 303401
+P 1 0 21 0 0 87.5 87.5 0 4
+P 2 0 -2 0 0 -1750 1750 0 4
+V -1 0 [1,2]
+P 3 -1 23 0 0 -1662.5 1837.5 91.1876 1
+E 2 1 3
+U GEV MM
+P 1 0 21 0 0 10 10 0 4
+P 2 0 21 0 0 -10 10 0 4
+V -1 0 [1,2]
+P 3 -1 25 0 0 0 20 20 1
+HepMC::Asciiv3-END_EVENT_LISTING
+"""
+
+V2_OLD_PDF_TEXT = V2_TEXT.replace(b"F 21 21 0.1 0.2 91 1 1 0 0", b"F 1 -1 0.5 0.25 20 0.75 0.5")
+
+
+def test_process_id_and_pdf_info(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Asciiv3 event attributes signal_process_id and GenPdfInfo ("id1 id2 x1 x2 scale xf1 xf2
+    # pdf_id1 pdf_id2", HepMC3 GenPdfInfo, # from memory); an event without them gets -1, NaN, 0
+    path = tmp_path / "pdf.hepmc"
+    path.write_bytes(V3_PDF_TEXT)
+    ev = _read_all(path)
+    assert ev.signal_process_id.tolist() == [81, -1]
+    first = [ev[f][0] for f in PDF_FIELDS]
+    assert first == [21, -2, 0.0125, 0.25, 172.5, 1.75, 0.0625, 303400, 303401]
+    second = [ev[f][1] for f in PDF_FIELDS]
+    assert second[:2] == [0, 0]
+    assert second[-2:] == [0, 0]
+    assert all(np.isnan(x) for x in second[2:7])
+    # an older IO_GenEvent F line without the PDF set ids: the ids read as 0
+    old = tmp_path / "old.hepmc"
+    old.write_bytes(V2_OLD_PDF_TEXT)
+    ev = _read_all(old)
+    assert [ev[f][0] for f in PDF_FIELDS] == [1, -1, 0.5, 0.25, 20.0, 0.75, 0.5, 0, 0]
+    # the compiled scanner and the Python fallback read the same
+    compiled = [_read_all(p) for p in (path, old)]
+    from evtkin.io import hepmc
+    from evtkin.io.hepmc_fallback import scan_py
+
+    monkeypatch.setattr(hepmc, "_KERNEL", scan_py)
+    monkeypatch.setattr(hepmc, "_KIND", "fallback")
+    assert hepmc.scanner_kind() == "fallback"
+    for p, ref in zip((path, old), compiled, strict=True):
+        _same(_read_all(p), ref)
 
 
 @pytest.mark.parametrize("threads", [0, 1, 2])

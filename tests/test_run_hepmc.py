@@ -18,6 +18,8 @@ from evtkin.io.hepmc_write import write_hepmc
 from evtkin.run.pipeline import run
 
 SAMPLE = Path(__file__).resolve().parents[1] / "samples" / "toy_drellyan_shower.hepmc.gz"
+#: the parton-level events SAMPLE was showered from (its first 100), with their process ids
+LHE_SAMPLE = SAMPLE.parent / "toy_drellyan.lhe.gz"
 EDGES = np.linspace(20.0, 120.0, 11)
 N_EVENTS = 100
 
@@ -26,7 +28,7 @@ N_EVENTS = 100
 def hepmc_file(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """The shipped toy shower file, plain (byte ranges need it), with varied weights (one in
     five negative) and a running σ estimate that changes from event to event, so that the
-    last event's record is the one that counts."""
+    last event's record is the one that counts; the signal process ids of the LHE events."""
     events = ak.concatenate(list(read_hepmc(SAMPLE)))
     assert len(events) == N_EVENTS
     n = len(events)
@@ -37,9 +39,17 @@ def hepmc_file(tmp_path_factory: pytest.TempPathFactory) -> Path:
     events = ak.with_field(events, weights, "weights")
     events = ak.with_field(events, xsec, "xsec_pb")
     events = ak.with_field(events, xerr, "xsec_err_pb")
+    events = ak.with_field(events, _lhe_process_ids(), "signal_process_id")
     path = tmp_path_factory.mktemp("hepmc") / "dy_shower.hepmc"
     write_hepmc(path, events, weight_names=hepmc_info(SAMPLE).weight_names)
     return path
+
+
+def _lhe_process_ids() -> np.ndarray:
+    from evtkin.io.lhe import read_lhe
+
+    pid = np.concatenate([ak.to_numpy(c["process_id"]) for c in read_lhe(LHE_SAMPLE)])
+    return pid[:N_EVENTS]
 
 
 def _config(path: Path, **sample: object) -> dict[str, object]:
@@ -133,3 +143,22 @@ def test_provenance_describes_the_file(hepmc_file: Path) -> None:
     assert record["format"] == "hepmc"
     assert record["hepmc_form"] == "Asciiv3"
     assert record["last_event_xsec_pb"] == pytest.approx(1950.0)
+
+
+def test_process_id_selects_the_signal_process(hepmc_file: Path) -> None:
+    # the toy Drell-Yan processes are ee (11) and μμ (13), both in the file; in expressions
+    # process_id is the HepMC event's signal process id, while σ stays the file's
+    pid = _lhe_process_ids()
+    assert set(pid.tolist()) == {11, 13}
+    weights = np.concatenate([ak.to_numpy(c["weight"]) for c in read_hepmc(hepmc_file)])
+    cfg = _config(hepmc_file)
+    cfg["step"] = [{"name": "mumu", "require": "process_id == 13"}]
+    for kw in ({"jobs": 1}, {"jobs": 1, "unit_bytes": 200_000, "step_size": 11}):
+        res = run(cfg, **kw)  # type: ignore[arg-type]
+        s = res.samples["dy"]
+        rows = {r["step"]: r for r in s.cutflow}
+        assert rows["mumu"]["n_raw"] == int((pid == 13).sum())
+        # the cutflow's Σw is normalised as the histograms are: σ · Σ_sel w / Σ w
+        want = 1950.0 * weights[pid == 13].sum() / weights.sum()
+        assert rows["mumu"]["sum_w"] == pytest.approx(want, rel=1e-12)
+        assert s.xsec.sigma_pb == pytest.approx(1950.0, rel=1e-12)

@@ -174,5 +174,9 @@ def test_toy_shower_command_is_deterministic(
         assert main(["toy", "shower", str(lhe), "-o", str(out), "-n", "3", "--seed", "9"]) == 0
     assert "wrote 3 particle-level events" in capsys.readouterr().out
     assert a.read_bytes() == b.read_bytes()
+    # each event keeps its LHE process id (IDPRUP) as the HepMC signal process id
+    lhe_ids = ak.to_numpy(next(evtkin.read_lhe(lhe, step_size=3))["process_id"])
+    got = ak.concatenate(list(evtkin.read_hepmc(a)))
+    np.testing.assert_array_equal(ak.to_numpy(got.signal_process_id), lhe_ids)
     assert main(["toy", "shower", "-o", str(a)]) == 1
     assert "needs an input LHE file" in capsys.readouterr().err

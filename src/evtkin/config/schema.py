@@ -17,7 +17,7 @@ EVENT_FIELDS: dict[str, str] = {
     "scale": "the event scale in GeV (SCALUP)",
     "alpha_qcd": "the strong coupling of the event (AQCDUP)",
     "alpha_qed": "the electromagnetic coupling of the event (AQEDUP)",
-    "process_id": "the process id of the event (IDPRUP)",
+    "process_id": "the process id of the event (IDPRUP; HepMC: the signal process id, -1 if none)",
     "particles": "every particle of the event record",
 }
 

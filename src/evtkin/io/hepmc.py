@@ -20,6 +20,12 @@ Each chunk is an awkward Array with one record per event: ``event_number`` (int6
 (the same columns as a record with one field per weight name), ``scale``,
 ``alpha_qcd``, ``alpha_qed``, ``xsec_pb``, ``xsec_err_pb`` (float64, NaN where the file
 has none; in IO_GenEvent files the unset value -1 of scale and couplings reads as NaN),
+``signal_process_id`` (int64: IO_GenEvent's process id, Asciiv3's ``signal_process_id``
+attribute; -1 where the file has none), the PDF info (IO_GenEvent ``F`` line, Asciiv3
+``GenPdfInfo`` attribute): ``pdf_parton1``, ``pdf_parton2`` (PDG ids), ``pdf_x1``,
+``pdf_x2``, ``pdf_scale`` (as written), ``pdf_xf1``, ``pdf_xf2`` (x f(x)),
+``pdf_set1``, ``pdf_set2`` (PDF set ids; the floats NaN and the ints 0 where the event
+has none),
 ``particles`` (jagged ``Particle`` records, see :mod:`evtkin.events`: ``pdgid``,
 ``status``, ``px``, ``py``, ``pz``, ``energy``, ``mass`` (the generated mass as written),
 ``prod_vertex``, ``end_vertex``: 0-based indices into the same event's ``vertices``,
@@ -73,6 +79,9 @@ PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
                    "px", "py", "pz", "energy", "mass")  # fmt: skip
 VERTEX_FIELDS = ("status", "x", "y", "z", "t")
 EVENT_FIELDS = ("weight", "scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb")
+#: the PDF info's fields, in the order of the line that gives them
+PDF_FIELDS = ("pdf_parton1", "pdf_parton2", "pdf_x1", "pdf_x2", "pdf_scale", "pdf_xf1",
+              "pdf_xf2", "pdf_set1", "pdf_set2")  # fmt: skip
 _CUT = b"\nE "
 _events.register()  # the Particle behaviour of the particle records
 _MAX_LISTED = 20  # damaged events named in a warning
@@ -312,10 +321,10 @@ class _Chunk:
         layout: Layout = [
             ((step,), i64), ((c.N_EVF, step), f64), ((step, k), f64), ((step + 1,), i64),
             ((step + 1,), i64), ((c.N_PI, p_cap), i32), ((c.N_PF, p_cap), f64),
-            ((v_cap,), i32), ((c.N_VF, v_cap), f64),
+            ((v_cap,), i32), ((c.N_VF, v_cap), f64), ((c.N_EVI - 3, step), i64),
         ]  # fmt: skip
-        (self.number, self.ev_f, self.wts, self.p_off, self.v_off, self.p_i, self.p_f,
-         self.v_i, self.v_f) = _carve(pool.take(_layout_bytes(layout)), layout)  # fmt: skip
+        (self.number, self.ev_f, self.wts, self.p_off, self.v_off, self.p_i, self.p_f, self.v_i,
+         self.v_f, self.ev_n) = _carve(pool.take(_layout_bytes(layout)), layout)  # fmt: skip
         self.p_off[0] = self.v_off[0] = 0
 
     def add(self, s: Parsed, a: int, b: int) -> None:
@@ -338,6 +347,7 @@ class _Chunk:
             v_i[:nv0], v_f[:, :nv0] = self.v_i[:nv0], self.v_f[:, :nv0]
             self.v_i, self.v_f = v_i, v_f
         self.number[n : n + m] = s.ev_i[0, a:b]
+        self.ev_n[:, n : n + m] = s.ev_i[3:, a:b]
         self.ev_f[:, n : n + m] = s.ev_f[:, a:b]
         self.wts[n : n + m] = s.wts[a:b]
         np.add(s.p_off[a + 1 : b + 1], np0 - pa, out=self.p_off[n + 1 : n + m + 1])
@@ -370,10 +380,15 @@ class _Chunk:
         )
         W = self.wts[:n]
         weights = C.RegularArray(C.NumpyArray(W.reshape(-1)), k, zeros_length=n)
-        columns: list[Any] = [C.NumpyArray(self.number[:n])]
-        columns += [C.NumpyArray(self.ev_f[j, :n]) for j in range(c.N_EVF)]
+        event: dict[str, Any] = {"event_number": C.NumpyArray(self.number[:n])}
+        for j, name in enumerate(EVENT_FIELDS + c.PDF_FLOAT_FIELDS):
+            event[name] = C.NumpyArray(self.ev_f[j, :n])
+        for j, name in enumerate(c.EV_INT_FIELDS):
+            event[name] = C.NumpyArray(self.ev_n[j, :n])
+        names = ["event_number", *EVENT_FIELDS, "signal_process_id", *PDF_FIELDS]
+        columns = [event[name] for name in names]
         columns += [weights, _events.named_weights(W, wnames), particles, vertices]
-        names = ["event_number", *EVENT_FIELDS, "weights", "named_weights", "particles", "vertices"]
+        names += ["weights", "named_weights", "particles", "vertices"]
         return ak.Array(C.RecordArray(columns, names, length=n))
 
 

@@ -298,6 +298,7 @@ class _State:
     def event_line(self, ev: _Event, ne: int, line: bytes, ls: int) -> None:
         self.ev_i[1, ne] = 0
         self.ev_i[2, ne] = ls
+        self.ev_i[3:, ne] = c.EV_INT_UNSET
         self.ev_f[:, ne] = np.nan
         t = _Toks(line)
         k = self.k
@@ -319,7 +320,7 @@ class _State:
                 _int(t.next())
                 for d in (1, 2, 3):
                     self.ev_f[d, ne] = _float(t.next())
-                _int(t.next())
+                self.ev_i[3, ne] = _int(t.next())  # process id
                 _int(t.next())
                 ev.decl_nv = _int(t.next())
                 if ev.decl_nv < 0:
@@ -400,16 +401,34 @@ class _State:
         elif c0 == b"A" and v3:
             try:
                 aid = _int(t.next())
-                if aid == 0 and len(t.t) > 2 and t.t[2] in _ATTR:
-                    t.i = 3
-                    for d in _ATTR[t.t[2]]:
+                name = t.t[2] if aid == 0 and len(t.t) > 2 else None
+                t.i = 3
+                if name in _ATTR:
+                    for d in _ATTR[name]:
                         self.ev_f[d, ne] = _float(t.next())
+                elif name == b"signal_process_id":
+                    self.ev_i[3, ne] = _int(t.next())
+                elif name == b"GenPdfInfo":
+                    self._pdf_info(ne, t)
             except _Bad:
                 raise _Fail(c.ERR_LINE, ls) from None
-        elif (v3 and c0 in (b"T", b"N")) or (not v3 and c0 in (b"N", b"H", b"F")):
+        elif c0 == b"F" and not v3:
+            try:
+                self._pdf_info(ne, t)
+            except _Bad:
+                raise _Fail(c.ERR_LINE, ls) from None
+        elif (v3 and c0 in (b"T", b"N")) or (not v3 and c0 in (b"N", b"H")):
             pass
         else:
             raise _Fail(c.ERR_UNEXPECTED, ls)
+
+    def _pdf_info(self, ne: int, t: _Toks) -> None:
+        """``id1 id2 x1 x2 scale xf1 xf2 [set1 set2]`` (later values ignored)."""
+        ids = (_int(t.next()), _int(t.next()))
+        for d in range(6, 11):
+            self.ev_f[d, ne] = _float(t.next())
+        sets = (_int(t.next()), _int(t.next())) if not t.done() else (0, 0)
+        self.ev_i[4:8, ne] = (*ids, *sets)
 
     def _p3(self, ev: _Event, t: _Toks, ls: int) -> None:
         i = self.npt

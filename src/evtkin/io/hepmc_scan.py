@@ -8,14 +8,21 @@ the file. The same kernel reads both ASCII forms (``cfg[CFG_FORM]``):
 
 * **Asciiv3**: ``E number n_vertices n_particles [@ x y z t]``, ``U``, ``W`` weights,
   ``A id name value`` attributes (event-level ``alphaQCD``, ``alphaQED``, ``event_scale``,
-  ``GenCrossSection``), ``C xsec err``, ``P id parent pdgid px py pz e m status`` (parent:
-  0 none, < 0 a vertex id, > 0 a particle id whose end vertex is meant, made if it has none
-  yet), ``V id status [in,in,...] [@ x y z t]``; ``T`` and ``N`` lines are skipped.
+  ``GenCrossSection``, ``signal_process_id``, ``GenPdfInfo``), ``C xsec err``,
+  ``P id parent pdgid px py pz e m status`` (parent: 0 none, < 0 a vertex id, > 0 a
+  particle id whose end vertex is meant, made if it has none yet), ``V id status
+  [in,in,...] [@ x y z t]``; ``T`` and ``N`` lines are skipped.
 * **IO_GenEvent**: ``E number n_mpi scale alpha_qcd alpha_qed process_id signal_vertex
   n_vertices beam1 beam2 n_random [random...] n_weights [weights...]``, ``U``, ``C``,
   ``V barcode id x y z ctau n_orphans n_out n_weights [weights...]`` followed by its
   ``n_orphans`` incoming and ``n_out`` outgoing ``P barcode pdgid px py pz e m status
-  theta phi end_vertex_barcode n_flow [flow pairs...]`` lines; ``N``, ``H``, ``F`` skipped.
+  theta phi end_vertex_barcode n_flow [flow pairs...]`` lines; ``F`` PDF info; ``N``, ``H``
+  skipped.
+
+PDF info (IO_GenEvent ``F`` line, Asciiv3 ``A 0 GenPdfInfo``): ``id1 id2 x1 x2 scale xf1
+xf2 [set1 set2]``, the partons' PDG ids, momentum fractions, factorisation scale, x*f(x)
+values and the two PDF set ids (0 when the line has only the first seven values, as
+older IO_GenEvent files write it; values after the ninth are ignored).
 
 References are resolved when an event ends (ids looked up through a stable sort, or
 directly where the ids count 1, 2, ... / -1, -2, ...): ``prod_vertex`` and
@@ -106,8 +113,15 @@ ERR_TWO_END = 21  # Asciiv3: a particle listed as incoming to a second vertex (A
 ERR_LOOP = 22  # IO_GenEvent: a particle ends in its own production vertex (A = barcode)
 
 # columns
-N_EVI = 3  # event_number, unit flags (1 MEV, 2 CM), line start offset
-N_EVF = 6  # weight, scale, alpha_qcd, alpha_qed, xsec, xsec_err
+# event_number, unit flags (1 MEV, 2 CM), line start offset, then EV_INT_FIELDS
+N_EVI = 8
+# weight, scale, alpha_qcd, alpha_qed, xsec, xsec_err, then the PDF info's floats
+N_EVF = 11
+#: the event ints of rows 3.. of the event columns, and their values where the file has none
+EV_INT_FIELDS = ("signal_process_id", "pdf_parton1", "pdf_parton2", "pdf_set1", "pdf_set2")
+EV_INT_UNSET = (-1, 0, 0, 0, 0)
+#: the PDF info's floats (rows 6.. of the float event columns; NaN where the file has none)
+PDF_FLOAT_FIELDS = ("pdf_x1", "pdf_x2", "pdf_scale", "pdf_xf1", "pdf_xf2")
 N_PI = 4  # pdgid, status, prod_vertex, end_vertex
 N_PF = 5  # px, py, pz, energy, mass
 N_VF = 4  # x, y, z, t
@@ -130,6 +144,8 @@ _A_AQCD = np.frombuffer(b"alphaQCD", dtype=np.uint8).copy()
 _A_AQED = np.frombuffer(b"alphaQED", dtype=np.uint8).copy()
 _A_SCALE = np.frombuffer(b"event_scale", dtype=np.uint8).copy()
 _A_XSEC = np.frombuffer(b"GenCrossSection", dtype=np.uint8).copy()
+_A_PROC = np.frombuffer(b"signal_process_id", dtype=np.uint8).copy()
+_A_PDF = np.frombuffer(b"GenPdfInfo", dtype=np.uint8).copy()
 
 U = np.uint64  # index cast: unsigned indices need no wrap-around code
 _DOT48 = np.uint64(46 - 48 + (1 << 64))  # '.' - '0' as an unsigned byte difference
@@ -318,6 +334,51 @@ def _float(buf: Arr, p: int, n: int) -> tuple[float, int, int, int]:
     return (-x if neg else x), s, p, 0
 
 
+def _event_floats(buf: Arr, p: int, n: int, ev_f: Arr, ne: int, d0: int, d1: int, slow: Arr,
+                  nslow: int) -> tuple[int, bool, int]:  # fmt: skip
+    """Parse floats at ``p`` into the event rows ``d0..d1`` of event ``ne`` (slow tokens
+    into the slow list): (end, ok, slow count)."""
+    for d in range(d0, d1 + 1):
+        x, s, p, fs = _float(buf, p, n)
+        if fs == 2:
+            return p, False, nslow
+        ev_f[d, ne] = x
+        if fs == 1:
+            slow[nslow, 0] = T_EVF
+            slow[nslow, 1] = d
+            slow[nslow, 2] = ne
+            slow[nslow, 3] = s
+            slow[nslow, 4] = p
+            nslow += 1
+    return p, True, nslow
+
+
+def _pdf_info(buf: Arr, p: int, n: int, ev_i: Arr, ev_f: Arr, ne: int, slow: Arr,
+              nslow: int) -> tuple[int, bool, int]:  # fmt: skip
+    """Parse ``id1 id2 x1 x2 scale xf1 xf2 [set1 set2]`` at ``p`` into event ``ne``:
+    (end, ok, slow count)."""
+    id1, p, ok = _int(buf, p, n, INT32_MAX + 1)
+    id2 = 0
+    if ok:
+        id2, p, ok = _int(buf, p, n, INT32_MAX + 1)
+    if ok:
+        p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, 6, 10, slow, nslow)
+    set1 = 0
+    set2 = 0
+    if ok:
+        eol, _q = _at_eol(buf, p, n)
+        if not eol:
+            set1, p, ok = _int(buf, p, n, INT32_MAX + 1)
+            if ok:
+                set2, p, ok = _int(buf, p, n, INT32_MAX + 1)
+    if ok:
+        ev_i[4, ne] = id1
+        ev_i[5, ne] = id2
+        ev_i[6, ne] = set1
+        ev_i[7, ne] = set2
+    return p, ok, nslow
+
+
 def _match(buf: Arr, a: int, b: int, pat: Arr) -> bool:
     """Whether ``buf[a:b]`` equals ``pat``."""
     if b - a != pat.shape[0]:
@@ -467,7 +528,8 @@ def _finish_v2(
 
 _HELPERS = (
     "_is_sep", "_skip_sep", "_at_eol", "_line_end", "_token_end", "_int", "_digits",
-    "_float", "_match", "_lookup", "_index", "_finish_v3", "_finish_v2",
+    "_float", "_event_floats", "_pdf_info", "_match", "_lookup", "_index", "_finish_v3",
+    "_finish_v2",
 )  # fmt: skip
 
 
@@ -1120,6 +1182,9 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                 rem_out = 0
                 ev_i[1, ne] = 0
                 ev_i[2, ne] = ls
+                ev_i[3, ne] = -1  # EV_INT_UNSET
+                for d in range(4, N_EVI):
+                    ev_i[d, ne] = 0
                 for d in range(N_EVF):
                     ev_f[d, ne] = np.nan
                 ok = True
@@ -1150,23 +1215,13 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                 else:
                     _x, p, ok1 = _int(buf, p, n, INT32_MAX + 1)  # n_mpi
                     ok = ok and ok1
-                    for d in (1, 2, 3):  # scale, alpha_qcd, alpha_qed
-                        if ok:
-                            x, s, p, fs = _float(buf, p, n)
-                            if fs == 2:
-                                ok = False
-                            else:
-                                ev_f[d, ne] = x
-                                if fs == 1:
-                                    slow[nslow, 0] = T_EVF
-                                    slow[nslow, 1] = d
-                                    slow[nslow, 2] = ne
-                                    slow[nslow, 3] = s
-                                    slow[nslow, 4] = p
-                                    nslow += 1
-                    for _d in range(2):  # process id, signal vertex
-                        if ok:
-                            _x, p, ok = _int(buf, p, n, INT32_MAX + 1)
+                    if ok:  # scale, alpha_qcd, alpha_qed
+                        p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, 1, 3, slow, nslow)
+                    if ok:
+                        proc, p, ok = _int(buf, p, n, INT32_MAX + 1)
+                        ev_i[3, ne] = proc
+                    if ok:  # signal vertex
+                        _x, p, ok = _int(buf, p, n, INT32_MAX + 1)
                     if ok:
                         decl_nv, p, ok = _int(buf, p, n, INT32_MAX + 1)
                         if ok and decl_nv < 0:
@@ -1534,21 +1589,7 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         eb = k
                     nw_seen = 1
             elif c == 67:  # C
-                ok = True
-                for d in (4, 5):
-                    if ok:
-                        x, s, p, fs = _float(buf, p, n)
-                        if fs == 2:
-                            ok = False
-                        else:
-                            ev_f[d, ne] = x
-                            if fs == 1:
-                                slow[nslow, 0] = T_EVF
-                                slow[nslow, 1] = d
-                                slow[nslow, 2] = ne
-                                slow[nslow, 3] = s
-                                slow[nslow, 4] = p
-                                nslow += 1
+                p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, 4, 5, slow, nslow)
                 if not ok:
                     code = ERR_LINE
                     errpos = ls
@@ -1570,26 +1611,25 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         d = 4
                     if d >= 0:
                         last = 5 if d == 4 else d
-                        for dd in range(d, last + 1):
-                            if ok:
-                                x, s, p, fs = _float(buf, p, n)
-                                if fs == 2:
-                                    ok = False
-                                else:
-                                    ev_f[dd, ne] = x
-                                    if fs == 1:
-                                        slow[nslow, 0] = T_EVF
-                                        slow[nslow, 1] = dd
-                                        slow[nslow, 2] = ne
-                                        slow[nslow, 3] = s
-                                        slow[nslow, 4] = p
-                                        nslow += 1
+                        p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, d, last, slow, nslow)
+                    elif _match(buf, a1, b1, _A_PROC):
+                        proc, p, ok = _int(buf, p, n, INT32_MAX + 1)
+                        if ok:
+                            ev_i[3, ne] = proc
+                    elif _match(buf, a1, b1, _A_PDF):
+                        p, ok, nslow = _pdf_info(buf, p, n, ev_i, ev_f, ne, slow, nslow)
+                if not ok:
+                    code = ERR_LINE
+                    errpos = ls
+                p = _line_end(buf, p, n)
+            elif c == 70 and form == FORM_V2:  # F
+                p, ok, nslow = _pdf_info(buf, p, n, ev_i, ev_f, ne, slow, nslow)
                 if not ok:
                     code = ERR_LINE
                     errpos = ls
                 p = _line_end(buf, p, n)
             elif (form == FORM_V3 and (c == 84 or c == 78)) or (
-                form == FORM_V2 and (c == 78 or c == 72 or c == 70)
+                form == FORM_V2 and (c == 78 or c == 72)
             ):
                 p = _line_end(buf, p, n)
             else:

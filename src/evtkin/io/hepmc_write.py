@@ -2,7 +2,9 @@
 gzipped, with deterministic bytes (gzip members carry no time stamp or file name).
 
 Input: awkward chunks with the fields :func:`evtkin.read_hepmc` yields (``event_number``,
-``weights``, ``scale``, ``alpha_qcd``, ``alpha_qed``, ``xsec_pb``, ``xsec_err_pb``;
+``weights``, ``scale``, ``alpha_qcd``, ``alpha_qed``, ``xsec_pb``, ``xsec_err_pb``,
+``signal_process_id`` and the PDF info ``pdf_parton1 pdf_parton2 pdf_x1 pdf_x2 pdf_scale
+pdf_xf1 pdf_xf2 pdf_set1 pdf_set2``, written where ``pdf_x1`` is not NaN;
 ``particles`` with ``pdgid status px py pz energy mass prod_vertex end_vertex``;
 ``vertices`` with ``x y z t status``); missing event fields are left out of the file.
 Momenta are written in GeV, lengths in mm.
@@ -111,10 +113,26 @@ def _header(form: str, names: list[str], tools: Sequence[tuple[str, str, str]],
     return "\n".join(lines) + "\n"
 
 
-def _get(chunk: ak.Array, field: str, n: int, default: float) -> list[float]:
+def _get(chunk: ak.Array, field: str, n: int, default: float, dtype: Any = np.float64) -> list[Any]:
     if field in ak.fields(chunk):
-        return np.asarray(ak.to_numpy(chunk[field]), dtype=np.float64).tolist()  # type: ignore[no-any-return]
+        return np.asarray(ak.to_numpy(chunk[field]), dtype=dtype).tolist()  # type: ignore[no-any-return]
     return [default] * n
+
+
+#: event fields written besides weights and particles, with their values where a chunk has none
+_EVENT_FLOATS = ("scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb", "pdf_x1",
+                 "pdf_x2", "pdf_scale", "pdf_xf1", "pdf_xf2")  # fmt: skip
+_EVENT_INTS = {"signal_process_id": -1, "pdf_parton1": 0, "pdf_parton2": 0, "pdf_set1": 0,
+               "pdf_set2": 0}  # fmt: skip
+
+
+def _pdf_text(ev: dict[str, Any], fmt: Any) -> str | None:
+    """``id1 id2 x1 x2 scale xf1 xf2 set1 set2``, or None where the event has no PDF info."""
+    if ev["pdf_x1"] != ev["pdf_x1"]:
+        return None
+    floats = " ".join(fmt(ev[f]) for f in ("pdf_x1", "pdf_x2", "pdf_scale", "pdf_xf1", "pdf_xf2"))
+    return (f"{ev['pdf_parton1']} {ev['pdf_parton2']} {floats} "
+            f"{ev['pdf_set1']} {ev['pdf_set2']}")  # fmt: skip
 
 
 def _format_chunk(chunk: ak.Array, form: str, names: list[str], fmt: Any) -> str:
@@ -128,11 +146,8 @@ def _format_chunk(chunk: ak.Array, form: str, names: list[str], fmt: Any) -> str
             raise ValueError(f"the events hold {w.shape[1]} weights but {k} names are given")
     else:
         w = np.zeros((n, 0))
-    scale = _get(chunk, "scale", n, np.nan)
-    aqcd = _get(chunk, "alpha_qcd", n, np.nan)
-    aqed = _get(chunk, "alpha_qed", n, np.nan)
-    xs = _get(chunk, "xsec_pb", n, np.nan)
-    xe = _get(chunk, "xsec_err_pb", n, np.nan)
+    cols = {f: _get(chunk, f, n, np.nan) for f in _EVENT_FLOATS}
+    cols.update({f: _get(chunk, f, n, d, np.int64) for f, d in _EVENT_INTS.items()})
     p = chunk["particles"]
     v = chunk["vertices"]
     p_off = np.asarray(ak.num(p, axis=1))
@@ -154,14 +169,13 @@ def _format_chunk(chunk: ak.Array, form: str, names: list[str], fmt: Any) -> str
     for e in range(n):
         pa, pb, va, vb = int(p_off[e]), int(p_off[e + 1]), int(v_off[e]), int(v_off[e + 1])
         weights = wl[e]
+        ev = {f: col[e] for f, col in cols.items()}
         if form == "Asciiv3":
-            parts.append(_event_v3(int(nums[e]), weights, scale[e], aqcd[e], aqed[e], xs[e],
-                                   xe[e], pa, pb, va, vb, pdg, pst, prod, endv, mom, vst, vpos,
-                                   fmt))  # fmt: skip
+            parts.append(_event_v3(int(nums[e]), weights, ev, pa, pb, va, vb, pdg, pst, prod,
+                                   endv, mom, vst, vpos, fmt))  # fmt: skip
         else:
-            parts.append(_event_v2(int(nums[e]), names, weights, scale[e], aqcd[e], aqed[e],
-                                   xs[e], xe[e], pa, pb, va, vb, pdg, pst, prod, endv, mom, vst,
-                                   vpos, fmt))  # fmt: skip
+            parts.append(_event_v2(int(nums[e]), names, weights, ev, pa, pb, va, vb, pdg, pst,
+                                   prod, endv, mom, vst, vpos, fmt))  # fmt: skip
     return "".join(parts)
 
 
@@ -169,10 +183,10 @@ def _pos_zero(vpos: list[list[float]], j: int) -> bool:
     return vpos[0][j] == 0.0 and vpos[1][j] == 0.0 and vpos[2][j] == 0.0 and vpos[3][j] == 0.0
 
 
-def _event_v3(num: int, weights: list[float], scale: float, aqcd: float, aqed: float,
-              xs: float, xe: float, pa: int, pb: int, va: int, vb: int, pdg: list[int],
-              pst: list[int], prod: list[int], endv: list[int], mom: list[list[float]],
-              vst: list[int], vpos: list[list[float]], fmt: Any) -> str:  # fmt: skip
+def _event_v3(num: int, weights: list[float], ev: dict[str, Any], pa: int, pb: int, va: int,
+              vb: int, pdg: list[int], pst: list[int], prod: list[int], endv: list[int],
+              mom: list[list[float]], vst: list[int], vpos: list[list[float]],
+              fmt: Any) -> str:  # fmt: skip
     nv = vb - va
     incoming: list[list[int]] = [[] for _ in range(nv)]
     for i in range(pa, pb):
@@ -183,14 +197,18 @@ def _event_v3(num: int, weights: list[float], scale: float, aqcd: float, aqed: f
     lines = [f"E {num} {nv} {pb - pa}", "U GEV MM"]
     if weights:
         lines.append("W " + " ".join(fmt(x) for x in weights))
+    xs, xe = ev["xsec_pb"], ev["xsec_err_pb"]
     if xs == xs:
         lines.append(f"A 0 GenCrossSection {fmt(xs)} {fmt(xe if xe == xe else 0.0)}")
-    if scale == scale:
-        lines.append(f"A 0 event_scale {fmt(scale)}")
-    if aqcd == aqcd:
-        lines.append(f"A 0 alphaQCD {fmt(aqcd)}")
-    if aqed == aqed:
-        lines.append(f"A 0 alphaQED {fmt(aqed)}")
+    for field, name in (("scale", "event_scale"), ("alpha_qcd", "alphaQCD"),
+                        ("alpha_qed", "alphaQED")):  # fmt: skip
+        if ev[field] == ev[field]:
+            lines.append(f"A 0 {name} {fmt(ev[field])}")
+    if ev["signal_process_id"] >= 0:
+        lines.append(f"A 0 signal_process_id {ev['signal_process_id']}")
+    pdf = _pdf_text(ev, fmt)
+    if pdf is not None:
+        lines.append(f"A 0 GenPdfInfo {pdf}")
     vid = [0] * nv  # file id of each vertex, 0 = not written yet
     written = 0
 
@@ -226,10 +244,9 @@ def _event_v3(num: int, weights: list[float], scale: float, aqcd: float, aqed: f
     return "\n".join(lines) + "\n"
 
 
-def _event_v2(num: int, names: list[str], weights: list[float], scale: float, aqcd: float,
-              aqed: float, xs: float, xe: float, pa: int, pb: int, va: int, vb: int,
-              pdg: list[int], pst: list[int], prod: list[int], endv: list[int],
-              mom: list[list[float]], vst: list[int], vpos: list[list[float]],
+def _event_v2(num: int, names: list[str], weights: list[float], ev: dict[str, Any], pa: int,
+              pb: int, va: int, vb: int, pdg: list[int], pst: list[int], prod: list[int],
+              endv: list[int], mom: list[list[float]], vst: list[int], vpos: list[list[float]],
               fmt: Any) -> str:  # fmt: skip
     nv = vb - va
     orphans: list[list[int]] = [[] for _ in range(nv)]
@@ -246,16 +263,20 @@ def _event_v2(num: int, names: list[str], weights: list[float], scale: float, aq
     def unset(x: float) -> str:
         return fmt(x) if x == x else "-1"
 
-    head = (f"E {num} -1 {unset(scale)} {unset(aqcd)} {unset(aqed)} 0 0 {nv} 0 0 0 "
-            f"{len(weights)}")  # fmt: skip
+    head = (f"E {num} -1 {unset(ev['scale'])} {unset(ev['alpha_qcd'])} {unset(ev['alpha_qed'])} "
+            f"{ev['signal_process_id']} 0 {nv} 0 0 0 {len(weights)}")  # fmt: skip
     if weights:
         head += " " + " ".join(fmt(x) for x in weights)
     lines = [head]
     if names:
         lines.append(f"N {len(names)} " + " ".join('"' + n.replace('"', "'") + '"' for n in names))
     lines.append("U GEV MM")
+    xs, xe = ev["xsec_pb"], ev["xsec_err_pb"]
     if xs == xs:
         lines.append(f"C {fmt(xs)} {fmt(xe if xe == xe else 0.0)}")
+    pdf = _pdf_text(ev, fmt)
+    if pdf is not None:
+        lines.append(f"F {pdf}")
     for j in range(nv):
         g = va + j
         lines.append(f"V {-(j + 1)} {vst[g]} " + " ".join(fmt(vpos[d][g]) for d in range(4))

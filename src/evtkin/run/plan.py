@@ -239,6 +239,10 @@ class ChunkView:
         cfg = self.plan.config
         if name == "particles":
             value = self.chunk["particles"]
+        elif name == "process_id" and "signal_process_id" in ak.fields(self.chunk):
+            # HepMC: the file's signal process id (the chunk's own process_id, the key the
+            # normalisation is kept by, is 0 for every event of a HepMC file)
+            value = self.chunk["signal_process_id"]
         elif name in ("weight", "scale", "alpha_qcd", "alpha_qed", "process_id"):
             value = self.chunk[name]
         elif name in cfg.tables:

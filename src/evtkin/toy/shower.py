@@ -564,7 +564,8 @@ def _to_chunk(records: list[Record], lhe: Any, first_number: int) -> ak.Array:
     return ak.zip({
         "event_number": np.arange(first_number, first_number + n, dtype=np.int64),
         "weights": lhe["weights"], "scale": lhe["scale"], "alpha_qcd": lhe["alpha_qcd"],
-        "alpha_qed": lhe["alpha_qed"], "particles": particles, "vertices": vertices,
+        "alpha_qed": lhe["alpha_qed"], "signal_process_id": lhe["process_id"],
+        "particles": particles, "vertices": vertices,
     }, depth_limit=1)  # fmt: skip
 
 

@@ -12,7 +12,10 @@ weights (:func:`evtkin.hists.xsec.combine_files`, IDWTUP 3): every event weight 
 share σ by their event counts). The first weight is the nominal one; every weight column,
 the nominal one included, is a variation named as in the header.
 
-Events carry no process id in HepMC: the chunks get ``process_id = 0``.
+The normalisation is per file, whatever the events' processes: the chunks get
+``process_id = 0``, the key the run keeps totals and histograms by. The events' own signal
+process ids (``signal_process_id`` of :func:`~evtkin.io.hepmc.read_hepmc`) are what the name
+``process_id`` gives in expressions (:mod:`evtkin.run.plan`).
 
 Truth. ``truth_files = [LHE files]`` gives the generator-level events the file was showered
 from: event number N (counted from 1, as ``evtkin toy shower`` writes them) is the N-th event of
