@@ -334,19 +334,20 @@ def _float(buf: Arr, p: int, n: int) -> tuple[float, int, int, int]:
     return (-x if neg else x), s, p, 0
 
 
-def _event_floats(buf: Arr, p: int, n: int, ev_f: Arr, ne: int, d0: int, d1: int, slow: Arr,
-                  nslow: int) -> tuple[int, bool, int]:  # fmt: skip
-    """Parse floats at ``p`` into the event rows ``d0..d1`` of event ``ne`` (slow tokens
-    into the slow list): (end, ok, slow count)."""
+def _floats(buf: Arr, p: int, n: int, out: Arr, col: int, d0: int, d1: int, target: int,
+            slow: Arr, nslow: int) -> tuple[int, bool, int]:  # fmt: skip
+    """Parse floats at ``p`` into the rows ``d0..d1`` of column ``col`` of ``out`` (slow
+    tokens into the slow list as ``target``): (end, ok, slow count). Stops at the first
+    malformed token."""
     for d in range(d0, d1 + 1):
         x, s, p, fs = _float(buf, p, n)
         if fs == 2:
             return p, False, nslow
-        ev_f[d, ne] = x
+        out[d, col] = x
         if fs == 1:
-            slow[nslow, 0] = T_EVF
+            slow[nslow, 0] = target
             slow[nslow, 1] = d
-            slow[nslow, 2] = ne
+            slow[nslow, 2] = col
             slow[nslow, 3] = s
             slow[nslow, 4] = p
             nslow += 1
@@ -362,7 +363,7 @@ def _pdf_info(buf: Arr, p: int, n: int, ev_i: Arr, ev_f: Arr, ne: int, slow: Arr
     if ok:
         id2, p, ok = _int(buf, p, n, INT32_MAX + 1)
     if ok:
-        p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, 6, 10, slow, nslow)
+        p, ok, nslow = _floats(buf, p, n, ev_f, ne, 6, 10, T_EVF, slow, nslow)
     set1 = 0
     set2 = 0
     if ok:
@@ -528,7 +529,7 @@ def _finish_v2(
 
 _HELPERS = (
     "_is_sep", "_skip_sep", "_at_eol", "_line_end", "_token_end", "_int", "_digits",
-    "_float", "_event_floats", "_pdf_info", "_match", "_lookup", "_index", "_finish_v3",
+    "_float", "_floats", "_pdf_info", "_match", "_lookup", "_index", "_finish_v3",
     "_finish_v2",
 )  # fmt: skip
 
@@ -1216,7 +1217,7 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                     _x, p, ok1 = _int(buf, p, n, INT32_MAX + 1)  # n_mpi
                     ok = ok and ok1
                     if ok:  # scale, alpha_qcd, alpha_qed
-                        p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, 1, 3, slow, nslow)
+                        p, ok, nslow = _floats(buf, p, n, ev_f, ne, 1, 3, T_EVF, slow, nslow)
                     if ok:
                         proc, p, ok = _int(buf, p, n, INT32_MAX + 1)
                         ev_i[3, ne] = proc
@@ -1287,20 +1288,8 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         ref, p, ok = _int(buf, p, n, INT32_MAX + 1)
                     if ok:
                         pdg, p, ok = _int(buf, p, n, INT32_MAX + 1)
-                    for d in range(5):
-                        if ok:
-                            x, s, p, fs = _float(buf, p, n)
-                            if fs == 2:
-                                ok = False
-                            else:
-                                p_f[d, npt] = x
-                                if fs == 1:
-                                    slow[nslow, 0] = T_PF
-                                    slow[nslow, 1] = d
-                                    slow[nslow, 2] = npt
-                                    slow[nslow, 3] = s
-                                    slow[nslow, 4] = p
-                                    nslow += 1
+                    if ok:
+                        p, ok, nslow = _floats(buf, p, n, p_f, npt, 0, 4, T_PF, slow, nslow)
                     if ok:
                         stat, p, ok = _int(buf, p, n, INT32_MAX + 1)
                     if ok:
@@ -1331,20 +1320,8 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         bc, p, ok = _int(buf, p, n, INT32_MAX + 1)
                         if ok:
                             pdg, p, ok = _int(buf, p, n, INT32_MAX + 1)
-                        for d in range(5):
-                            if ok:
-                                x, s, p, fs = _float(buf, p, n)
-                                if fs == 2:
-                                    ok = False
-                                else:
-                                    p_f[d, npt] = x
-                                    if fs == 1:
-                                        slow[nslow, 0] = T_PF
-                                        slow[nslow, 1] = d
-                                        slow[nslow, 2] = npt
-                                        slow[nslow, 3] = s
-                                        slow[nslow, 4] = p
-                                        nslow += 1
+                        if ok:
+                            p, ok, nslow = _floats(buf, p, n, p_f, npt, 0, 4, T_PF, slow, nslow)
                         if ok:
                             stat, p, ok = _int(buf, p, n, INT32_MAX + 1)
                         for _d in range(2):  # polarisation theta, phi
@@ -1437,19 +1414,7 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         if not eol:
                             if buf[p] == 64 and (p + 1 >= n or _is_sep(buf[p + 1])):
                                 p += 1
-                                for d in range(4):
-                                    x, s, p, fs = _float(buf, p, n)
-                                    if fs == 2:
-                                        ok = False
-                                        break
-                                    v_f[d, nv] = x
-                                    if fs == 1:
-                                        slow[nslow, 0] = T_VF
-                                        slow[nslow, 1] = d
-                                        slow[nslow, 2] = nv
-                                        slow[nslow, 3] = s
-                                        slow[nslow, 4] = p
-                                        nslow += 1
+                                p, ok, nslow = _floats(buf, p, n, v_f, nv, 0, 3, T_VF, slow, nslow)
                                 if ok:
                                     eol, p = _at_eol(buf, p, n)
                                     ok = eol
@@ -1481,20 +1446,8 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         vst = 0
                         if ok:
                             vst, p, ok = _int(buf, p, n, INT32_MAX + 1)
-                        for d in range(4):
-                            if ok:
-                                x, s, p, fs = _float(buf, p, n)
-                                if fs == 2:
-                                    ok = False
-                                else:
-                                    v_f[d, nv] = x
-                                    if fs == 1:
-                                        slow[nslow, 0] = T_VF
-                                        slow[nslow, 1] = d
-                                        slow[nslow, 2] = nv
-                                        slow[nslow, 3] = s
-                                        slow[nslow, 4] = p
-                                        nslow += 1
+                        if ok:
+                            p, ok, nslow = _floats(buf, p, n, v_f, nv, 0, 3, T_VF, slow, nslow)
                         no = 0
                         nout = 0
                         nwv = 0
@@ -1589,7 +1542,7 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         eb = k
                     nw_seen = 1
             elif c == 67:  # C
-                p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, 4, 5, slow, nslow)
+                p, ok, nslow = _floats(buf, p, n, ev_f, ne, 4, 5, T_EVF, slow, nslow)
                 if not ok:
                     code = ERR_LINE
                     errpos = ls
@@ -1611,7 +1564,7 @@ def scan_kernel_source(  # one line-dispatch loop on purpose (see the module doc
                         d = 4
                     if d >= 0:
                         last = 5 if d == 4 else d
-                        p, ok, nslow = _event_floats(buf, p, n, ev_f, ne, d, last, slow, nslow)
+                        p, ok, nslow = _floats(buf, p, n, ev_f, ne, d, last, T_EVF, slow, nslow)
                     elif _match(buf, a1, b1, _A_PROC):
                         proc, p, ok = _int(buf, p, n, INT32_MAX + 1)
                         if ok:
