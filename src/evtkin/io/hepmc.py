@@ -79,9 +79,7 @@ PARTICLE_FIELDS = ("pdgid", "status", "prod_vertex", "end_vertex",
                    "px", "py", "pz", "energy", "mass")  # fmt: skip
 VERTEX_FIELDS = ("status", "x", "y", "z", "t")
 EVENT_FIELDS = ("weight", "scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb")
-#: the PDF info's fields, in the order of the line that gives them
-PDF_FIELDS = ("pdf_parton1", "pdf_parton2", "pdf_x1", "pdf_x2", "pdf_scale", "pdf_xf1",
-              "pdf_xf2", "pdf_set1", "pdf_set2")  # fmt: skip
+PDF_FIELDS = c.PDF_FIELDS
 _CUT = b"\nE "
 _events.register()  # the Particle behaviour of the particle records
 _MAX_LISTED = 20  # damaged events named in a warning

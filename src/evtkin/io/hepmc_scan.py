@@ -122,6 +122,8 @@ EV_INT_FIELDS = ("signal_process_id", "pdf_parton1", "pdf_parton2", "pdf_set1", 
 EV_INT_UNSET = (-1, 0, 0, 0, 0)
 #: the PDF info's floats (rows 6.. of the float event columns; NaN where the file has none)
 PDF_FLOAT_FIELDS = ("pdf_x1", "pdf_x2", "pdf_scale", "pdf_xf1", "pdf_xf2")
+#: the PDF info's fields, in the order of the line that gives them
+PDF_FIELDS = ("pdf_parton1", "pdf_parton2", *PDF_FLOAT_FIELDS, "pdf_set1", "pdf_set2")
 N_PI = 4  # pdgid, status, prod_vertex, end_vertex
 N_PF = 5  # px, py, pz, energy, mass
 N_VF = 4  # x, y, z, t

@@ -32,6 +32,7 @@ import awkward as ak
 import numpy as np
 
 from evtkin.files import atomic_path
+from evtkin.io.hepmc_scan import EV_INT_FIELDS, EV_INT_UNSET, PDF_FIELDS, PDF_FLOAT_FIELDS
 
 __all__ = ["write_hepmc"]
 
@@ -120,19 +121,15 @@ def _get(chunk: ak.Array, field: str, n: int, default: float, dtype: Any = np.fl
 
 
 #: event fields written besides weights and particles, with their values where a chunk has none
-_EVENT_FLOATS = ("scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb", "pdf_x1",
-                 "pdf_x2", "pdf_scale", "pdf_xf1", "pdf_xf2")  # fmt: skip
-_EVENT_INTS = {"signal_process_id": -1, "pdf_parton1": 0, "pdf_parton2": 0, "pdf_set1": 0,
-               "pdf_set2": 0}  # fmt: skip
+_EVENT_FLOATS = ("scale", "alpha_qcd", "alpha_qed", "xsec_pb", "xsec_err_pb", *PDF_FLOAT_FIELDS)
+_EVENT_INTS = dict(zip(EV_INT_FIELDS, EV_INT_UNSET, strict=True))
 
 
 def _pdf_text(ev: dict[str, Any], fmt: Any) -> str | None:
     """``id1 id2 x1 x2 scale xf1 xf2 set1 set2``, or None where the event has no PDF info."""
     if ev["pdf_x1"] != ev["pdf_x1"]:
         return None
-    floats = " ".join(fmt(ev[f]) for f in ("pdf_x1", "pdf_x2", "pdf_scale", "pdf_xf1", "pdf_xf2"))
-    return (f"{ev['pdf_parton1']} {ev['pdf_parton2']} {floats} "
-            f"{ev['pdf_set1']} {ev['pdf_set2']}")  # fmt: skip
+    return " ".join(fmt(ev[f]) if f in PDF_FLOAT_FIELDS else str(ev[f]) for f in PDF_FIELDS)
 
 
 def _format_chunk(chunk: ak.Array, form: str, names: list[str], fmt: Any) -> str:
