@@ -69,6 +69,11 @@ def _read(path: Path, **kw: object) -> list[ak.Array]:
         (4, b"U GEV INCH", "expected 'U GEV|MEV MM|CM'"),
         (4, b"Q what", "unexpected line"),
         (6, b"P 1 0 -11 0 0 -1 1 0 4", "id 1 is given twice"),
+        # event attributes that are read: their values must parse (the PDF set ids come
+        # in pairs); IO_GenEvent's F line has no place in an Asciiv3 file
+        (4, b"A 0 signal_process_id 8.1", "malformed A line"),
+        (4, b"A 0 GenPdfInfo 21 -2 0.1 0.2 91 1 1 303400", "malformed A line"),
+        (4, b"F 21 21 0.1 0.2 91 1 1 0 0", "unexpected line"),
     ],
 )
 @pytest.mark.parametrize("kind", ["numba", "fallback"])
@@ -219,3 +224,23 @@ def test_gzip_detected_by_content(tmp_path: Path) -> None:
     path = tmp_path / "looks_plain.hepmc"
     path.write_bytes(gzip.compress(GOOD, mtime=0))
     assert len(ak.concatenate(_read(path))) == 3
+
+
+@pytest.mark.parametrize("kind", ["numba", "fallback"])
+def test_malformed_pdf_line_of_io_genevent(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                           kind: str) -> None:  # fmt: skip
+    _scanner(monkeypatch, kind)
+    path = tmp_path / "v2.hepmc"
+    evtkin.write_hepmc(path, random_events(8, seed=2, grouped=True), form="IO_GenEvent",
+                       weight_names=("a", "b"))  # fmt: skip
+    lines = path.read_bytes().split(b"\n")
+    at = next(i for i, line in enumerate(lines) if line.startswith(b"F "))
+    lines[at] = b" ".join(lines[at].split()[:9])  # "F", 7 values and one PDF set id of the pair
+    path.write_bytes(b"\n".join(lines))
+    with pytest.raises(HepMCError, match=re.escape(f"{path}: line {at + 1}: malformed F line")) \
+            as err:
+        _read(path)
+    assert "expected: F id1 id2 x1 x2 scale xf1 xf2 [pdf_set1 pdf_set2]" in str(err.value)
+    with pytest.warns(HepMCWarning, match=r"skipped 1 damaged event"):
+        got = _read(path, strict=False)
+    assert len(ak.concatenate(got)) == 7

@@ -649,6 +649,7 @@ _LAYOUT = {
                       "[flow ...]",
     (c.FORM_V3, "C"): "C cross_section error",
     (c.FORM_V2, "C"): "C cross_section error",
+    (c.FORM_V2, "F"): "F id1 id2 x1 x2 scale xf1 xf2 [pdf_set1 pdf_set2]",
 }  # fmt: skip
 
 
