@@ -168,7 +168,13 @@ def test_serial_processes_and_dask_agree(files, reference):
     serial = flat(run(config(files), unit_bytes=size // 2, executor=SerialExecutor()))
     procs = run(config(files), unit_bytes=size // 2, executor=ProcessExecutor(2))
     assert procs.provenance["execution"]["kind"] == "processes"
-    assert len(procs.provenance["execution"]["peak_rss_mb_per_worker"]) == 2  # two workers ran
+    assert procs.provenance["execution"]["workers"] == 2
+    # every process that ran units reports its peak RSS; how many of the two got a unit is
+    # the scheduler's business (on a loaded machine one may take all six before the other
+    # has started)
+    rss = procs.provenance["execution"]["peak_rss_mb_per_worker"]
+    assert 1 <= len(rss) <= 2
+    assert all(v > 0 for v in rss)
     dask = run(config(files), unit_bytes=size // 2, executor=DaskExecutor("local", n_workers=2))
     assert dask.provenance["execution"] == {**dask.provenance["execution"], "kind": "dask",
                                             "workers": 2}
